@@ -1,0 +1,1 @@
+"""Bundled data tables (each row carries its published source)."""

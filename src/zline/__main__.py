@@ -1,0 +1,5 @@
+import sys
+
+from zline.cli import main
+
+sys.exit(main())

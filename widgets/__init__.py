@@ -1,0 +1,1 @@
+"""Notebook widgets: state and view only; every number comes from zline.physics."""
