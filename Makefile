@@ -18,7 +18,7 @@ venv: $(STAMP)
 ## The main job: the demo notebook in JupyterLab on bundled demo data.
 demo: $(STAMP)
 	$(BIN)/zline demo-data notebooks/demo-data --quiet
-	$(BIN)/jupyter lab --ip=127.0.0.1 --port=$(PORT) notebooks/galaxy_redshift.ipynb
+	$(BIN)/jupyter lab --ip=127.0.0.1 --port=$(PORT) $(if $(filter 0,$(shell id -u)),--allow-root,) notebooks/galaxy_redshift.ipynb
 
 ## The whole test suite (a browser test fails, not skips, when CI=true and chromium is missing).
 test: $(STAMP)
