@@ -235,8 +235,9 @@ def redshift_to_velocity(z, convention="optical"):
     Parameters
     ----------
     z : float or array_like
-        Redshift (> -1). The optical velocity grows without bound; the radio and relativistic
-        velocities stay below c.
+        Redshift (> -1). The relativistic velocity stays below c; the optical one exceeds c for
+        z > 1 and the radio one (v/c = z/(1+z)) reaches -c at z = -1/2, so such values cannot be
+        passed back as a velocity.
     convention : str
         One of `CONVENTIONS`.
 
