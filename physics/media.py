@@ -168,7 +168,12 @@ def _as_angstrom(value, argument):
             f"Argument '{argument}' must have a length unit (e.g. Angstrom, nm, um); "
             f"got unit '{value.unit}' ({value.unit.physical_type}). Convert frequencies or "
             f"energies to vacuum wavelengths first.")
-    return value.to_value(u.AA)
+    aa = value.to_value(u.AA)
+    if np.any(aa <= 0):
+        raise ValueError(
+            f"Argument '{argument}' must hold positive wavelengths; got minimum "
+            f"{np.nanmin(aa):g} Angstrom.")
+    return aa
 
 
 def _warn_range(vac_aa, formula, medium_in):

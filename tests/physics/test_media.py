@@ -163,6 +163,9 @@ def test_errors_name_argument():
     with pytest.raises(u.UnitTypeError, match="Argument 'wavelength' must have a length unit.*"
                                               "got unit 'GHz' \\(frequency\\)"):
         vacuum_to_air(5 * u.GHz)
+    with pytest.raises(ValueError, match="Argument 'wavelength' must hold positive wavelengths; "
+                                         "got minimum -5 Angstrom"):
+        air_to_vacuum([5000.0, -5.0] * u.AA)
     with pytest.raises(u.UnitTypeError, match="Argument 'vacuum_wavelength'"):
         refractive_index(2 * u.keV)
     with pytest.raises(ValueError, match="Unknown air formula 'Morton2000' for argument "
@@ -209,3 +212,15 @@ def test_newton_inverse_at_float64_limit(formula):
                    + np.longdouble(k2) / (np.longdouble(a2) - s2))
         x = air.astype(np.longdouble) * (1 + nm1)
     assert float(np.max(np.abs(vac - x))) < 1e-10  # A; measured ~4e-12 A (float64 rounding)
+
+
+def test_nan_propagates_and_empty_arrays():
+    # masked pixels arrive as NaN: they stay NaN and do not disturb the other values
+    wav = np.array([np.nan, 5000.0]) * u.AA
+    air = vacuum_to_air(wav)
+    assert np.isnan(air[0]) and air[1] == vacuum_to_air(5000.0 * u.AA)
+    vac = air_to_vacuum(air)
+    assert np.isnan(vac[0])
+    assert_quantity_allclose(vac[1], 5000.0 * u.AA, atol=1e-9 * u.AA, rtol=0)
+    assert vacuum_to_air(np.array([]) * u.nm).shape == (0,)
+    assert air_to_vacuum(np.array([]) * u.nm).unit == u.nm
