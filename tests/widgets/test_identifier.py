@@ -1,0 +1,271 @@
+"""LineIdentifier without a browser: traits and controls, simulated frontend messages, locks,
+tables, save/restore and error display."""
+
+from unittest import mock
+
+import astropy.units as u
+import numpy as np
+import pytest
+import traitlets
+from astropy.tests.helper import assert_quantity_allclose
+from ipywidgets.widgets.widget import _remove_buffers
+
+from zline.physics import kinematics
+from zline.widgets import LineIdentifier
+from zline.widgets._marks import marker_arrays, thin_labels
+
+# the invented scenario of conftest.spectrum: four lines at z = 0.1
+TRUE_Z = 0.1
+REST = np.array([4862.7, 5008.2, 6564.6, 6585.3])
+
+
+def frontend_update(widget, **state):
+    """A browser -> kernel 'update' message."""
+    st, paths, bufs = _remove_buffers(state)
+    widget._handle_msg({"content": {"data": {"method": "update", "state": st, "buffer_paths": paths}},
+                        "buffers": bufs})
+
+
+def frontend_custom(widget, content):
+    """A browser -> kernel custom message (mark events)."""
+    widget._handle_msg({"content": {"data": {"method": "custom", "content": content}}, "buffers": []})
+
+
+def click(w, x):
+    frontend_custom(w._catcher, {"event": "element_click", "data": {"click_x": float(x), "click_y": 1.0}})
+
+
+@pytest.fixture
+def w(spectrum, lines):
+    return LineIdentifier(spectrum, lines=lines, z=0.0995)
+
+
+def marker_positions(w):
+    """Observed positions drawn by every predicted-line mark, sorted (NaN separators dropped)."""
+    xs = np.concatenate([np.asarray(g.marker.x, float) for g in w._groups])
+    return np.unique(xs[np.isfinite(xs)])
+
+
+# ------------------------------------------------------------------ traits and controls
+def test_traits_follow_controls_and_back(w):
+    frontend_update(w._slider, value=0.105)
+    assert w.z == pytest.approx(0.105)
+    assert w._z_text.value == pytest.approx(0.105)
+    frontend_update(w._z_text, value=0.1012345)
+    assert w.z == pytest.approx(0.1012345)
+    assert w._slider.value == pytest.approx(0.1012345)
+    w.velocity = 250.0
+    assert w._v_text.value == 250.0
+    frontend_update(w._v_text, value=-80.0)
+    assert w.velocity == -80.0
+    frontend_update(w._conv, index=list(w._conv.options).index("relativistic"))
+    assert w.convention == "relativistic"
+    w.z = 3.7                                   # beyond the coarse range: the slider widens
+    assert w._slider.value == pytest.approx(3.7) and w._slider.max >= 3.7
+
+
+def test_observer_fires_once_per_change(w):
+    seen = mock.Mock()
+    w.observe(seen, names="z")
+    frontend_update(w._slider, value=0.2)
+    seen.assert_called_once()
+    assert seen.call_args[0][0]["new"] == pytest.approx(0.2)
+    frontend_update(w._slider, value=0.2)      # same value again: no new event
+    seen.assert_called_once()
+
+
+def test_bad_convention_and_bare_numbers_are_refused(w, spectrum, lines):
+    with pytest.raises(traitlets.TraitError, match="'convention' must be one of"):
+        w.convention = "sideways"
+    with pytest.raises(u.UnitTypeError, match="'velocity' must be a Quantity"):
+        LineIdentifier(spectrum, lines=lines, velocity=100.0)
+    with pytest.raises(u.UnitTypeError, match="'near' must be a Quantity"):
+        w.lock(near=7220.0)
+
+
+def test_fine_toggle_narrows_slider_around_z(w):
+    w.z = 0.1
+    coarse = w._slider.max - w._slider.min
+    w._fine.value = True
+    fine = w._slider.max - w._slider.min
+    assert fine < coarse / 50
+    assert w._slider.min < 0.1 < w._slider.max
+    assert w._slider.step < 1e-4
+    w._fine.value = False
+    assert w._slider.max - w._slider.min == pytest.approx(coarse)
+
+
+def test_medium_is_required_when_the_spectrum_does_not_say(spectrum, lines):
+    spectrum.meta["zline"].pop("medium")
+    with pytest.raises(ValueError, match="medium='air' or medium='vacuum'"):
+        LineIdentifier(spectrum, lines=lines)
+    w = LineIdentifier(spectrum, lines=lines, medium="air")
+    assert "air" in w._xaxis.label and "Å" in w._xaxis.label
+
+
+# ------------------------------------------------------------------ overlay
+def test_markers_sit_at_the_physics_positions(w):
+    for z, v, conv in [(0.098, 0.0, "optical"), (0.31, 1500.0, "relativistic"), (0.0, -300.0, "radio")]:
+        with w.hold_trait_notifications():
+            w.z, w.velocity, w.convention = z, v, conv
+        expected = kinematics.observed_position(REST * u.AA, z=z, velocity=v * u.km / u.s, convention=conv)
+        np.testing.assert_allclose(marker_positions(w), np.sort(expected.to_value(u.AA)), rtol=1e-12)
+        assert_quantity_allclose(np.sort(w.observed_positions()), np.sort(expected), rtol=1e-12)
+
+
+def test_z_change_sends_only_x_of_marker_and_label_marks(sent, spectrum, lines):
+    w = LineIdentifier(spectrum, lines=lines, z=0.098)
+    allowed = {g.marker.comm.comm_id for g in w._groups} | {g.label.comm.comm_id for g in w._groups}
+    sent.clear()
+    w.z = 0.0985                                # small move: labels keep their thinning
+    updates = [(cid, d) for cid, kind, d, _ in sent if d and d.get("method") == "update"]
+    assert updates, "a z change must reach the frontend"
+    for cid, d in updates:
+        if cid in allowed:
+            assert set(d["state"]) == {"x"}, d["state"].keys()
+    assert {cid for cid, _ in updates if cid in allowed} == allowed
+    other = [d["state"].keys() for cid, d in updates if cid not in allowed]
+    # the only other widgets allowed to change are the z controls themselves
+    ctrl = {w._slider.comm.comm_id, w._z_text.comm.comm_id}
+    assert all(cid in ctrl for cid, d in updates if cid not in allowed), other
+
+
+def test_one_nan_separated_mark_per_style_group(w):
+    keys = [g.key for g in w._groups]
+    assert len(keys) == len(set(keys)) == 3     # computed strong, tabulated strong, tabulated weak
+    for g in w._groups:
+        x = np.asarray(g.marker.x)
+        assert x.ndim == 1 and np.isnan(x[2::3]).all() and x.size == 3 * g.index.size
+
+
+def test_labels_thin_out_and_keep_the_strongest():
+    pixels = np.array([100.0, 105.0, 130.0, 131.0, np.nan, 300.0])
+    strength = np.array([0.2, 0.9, 0.5, 0.1, 1.0, 0.05])
+    show = thin_labels(pixels, strength, 14.0)
+    assert show.tolist() == [False, True, True, False, False, True]
+    kept = np.sort(pixels[show])
+    assert np.diff(kept).min() >= 14.0
+
+
+def test_marker_arrays_are_vertical_segments():
+    x, y = marker_arrays([1.0, 2.0], 0.0, 5.0)
+    np.testing.assert_array_equal(x[[0, 1, 3, 4]], [1, 1, 2, 2])
+    np.testing.assert_array_equal(y[[0, 1, 3, 4]], [0, 5, 0, 5])
+    assert np.isnan(x[[2, 5]]).all() and np.isnan(y[[2, 5]]).all()
+
+
+def test_zoom_redecimates_and_shows_masked_pixels(w, spectrum):
+    full = np.asarray(w._line.x).size
+    assert full <= 2 * w._plot_px + 8           # decimated, not 20000 points
+    frontend_update(w._xs, min=5200.0, max=5300.0)
+    x = np.asarray(w._line.x)
+    assert x.min() >= 5200.0 - 1 and x.max() <= 5300.0 + 1
+    axis = spectrum.spectral_axis.value
+    inside = (axis >= 5200.0) & (axis <= 5300.0)
+    assert x.size == inside.sum()               # fewer pixels than screen columns: every pixel shown
+    masked_x = axis[spectrum.mask]
+    np.testing.assert_allclose(np.sort(w._masked.x), masked_x[(masked_x >= 5200) & (masked_x <= 5300)])
+    band = np.asarray(w._band.y)
+    assert band.shape[0] == 2 and np.nanmin(band[1] - band[0]) > 0
+    assert w._catcher.x.tolist() == [5200.0, 5300.0]
+
+
+def test_zoom_to_line(w):
+    w.zoom_to("L6565")
+    centre = 6564.6 * kinematics.shift_factor(w.z, 0 * u.km / u.s, "optical")
+    assert w._xs.min < centre < w._xs.max
+    assert w._xs.max - w._xs.min < 100
+
+
+# ------------------------------------------------------------------ locking
+def test_click_in_identify_mode_locks_at_a_fitted_centroid(w):
+    click(w, 7219.0)                            # pan/zoom mode: a click does nothing
+    assert len(w.locks) == 0
+    frontend_update(w._mode, index=list(w._mode.options).index("identify"))
+    assert w.mode == "identify" and w.figure.interaction is None
+    click(w, 7219.0)
+    assert len(w.locks) == 1
+    lock = w.locks[0]
+    assert lock.label == "L6565"
+    assert lock.fit is not None
+    truth = 6564.6 * (1 + TRUE_Z)
+    assert abs(lock.observed.to_value(u.AA) - truth) < 5 * lock.observed_err.to_value(u.AA) + 0.01
+    assert abs(lock.observed.to_value(u.AA) - 7219.0) > 1.0   # snapped, not the raw click
+    w.mode = "pan/zoom"
+    assert w.figure.interaction is w._panzoom
+
+
+def test_failed_fit_falls_back_with_a_warning(w):
+    lock = w.lock(near=8500.0 * u.AA)           # flat continuum there: nothing to fit
+    assert lock.fit is None
+    assert lock.observed.to_value(u.AA) == pytest.approx(8500.0)
+    assert "Warning" in w.status and "failed" in w.status
+
+
+def test_locks_persist_when_z_moves(w):
+    w.lock(near=7221 * u.AA)
+    w.lock(near=5509 * u.AA)
+    before = np.asarray(w._locked.x).copy()
+    markers_before = marker_positions(w)
+    w.z = 0.5
+    assert len(w.locks) == 2
+    np.testing.assert_array_equal(np.asarray(w._locked.x), before)
+    assert not np.allclose(marker_positions(w), markers_before)
+    assert list(w._locked_labels.text) == ["L6565", "L5008"]
+
+
+def test_relock_replaces_unlock_and_annotate(w):
+    w.lock(near=7221 * u.AA)
+    w.lock(near=7222 * u.AA)
+    assert [k.label for k in w.locks] == ["L6565"]
+    w.lock(near=5350 * u.AA)
+    w.annotate("L6565", "peak of the brightest line")
+    assert w.locks[0].note == "peak of the brightest line"
+    w.unlock("L6565")
+    assert [k.label for k in w.locks] == ["L4863"]
+    w.unlock(0)
+    assert w.locks == ()
+    with pytest.raises(KeyError, match="no locked line labelled"):
+        w.unlock("nothing")
+
+
+def test_solve_sets_z_and_shows_sigma(w):
+    with pytest.raises(ValueError, match="lock at least one line"):
+        w.solve()
+    for x in (7221, 5509, 5349):
+        w.lock(near=x * u.AA)
+    z, z_err = w.solve()
+    assert w.z == z
+    assert abs(z - TRUE_Z) < 5 * z_err + 1e-6
+    assert 0 < z_err < 1e-4
+    assert "&sigma;" in w._results.value and "residual" in w._results.value
+
+
+def test_table_has_one_row_per_lock(w):
+    for x in (7221, 5509):
+        w.lock(near=x * u.AA)
+    w.lock(near=8500 * u.AA, line="L6585")      # forced label, no fit there
+    w.solve()
+    t = w.table()
+    assert len(t) == 3
+    for name in ("label", "rest", "observed", "observed_err", "residual_kms", "fitted", "fit_flux",
+                 "fit_flux_err", "fit_fwhm", "fit_ew", "fit_snr", "note", "species"):
+        assert name in t.colnames
+    assert t["rest"].unit == u.AA and t["residual_kms"].unit == u.km / u.s
+    assert t["fitted"].tolist() == [True, True, False]
+    assert np.isnan(t["fit_flux"][2].value) and t["fit_flux"][0].value > 0
+    assert_quantity_allclose(t["rest"], [6564.6, 5008.2, 6585.3] * u.AA)
+    # the residual of each lock is its velocity relative to the solved redshift
+    expected = kinematics.velocity_from(t["observed"], t["rest"], convention="optical", z=w.z)
+    assert_quantity_allclose(t["residual_kms"], expected)
+    assert t.meta["z"] == w.z and "z_err" in t.meta
+
+
+# ------------------------------------------------------------------ errors in the widget
+def test_upload_of_bytes_that_are_not_fits_shows_a_plain_error(w):
+    frontend_update(w._upload, value=[{"name": "notes.fits", "type": "application/fits", "size": 20,
+                                       "content": memoryview(b"this is not a FITS file"),
+                                       "last_modified": 1764633600000}])
+    assert "Problem" in w.status and "could not open" in w.status
+    assert "Traceback" not in w.status
+    assert np.asarray(w._line.x).size > 0       # the old spectrum stays on screen

@@ -1,0 +1,883 @@
+"""Interactive line identification on a 1D spectrum: overlay predicted lines, lock, solve, save.
+
+The widget holds state and draws; every number with physics in it (reading files, line lists,
+redshifting, fitting, solving, saving) comes from `zline.physics`.
+"""
+
+import dataclasses
+import html
+import importlib
+import io
+import os
+import warnings
+
+import astropy.units as u
+import ipywidgets as W
+import numpy as np
+import traitlets as T
+
+with warnings.catch_warnings():
+    # bqplot 0.13 / bqscales set trait metadata the pre-4.1 way (a DeprecationWarning at import)
+    warnings.filterwarnings("ignore", category=DeprecationWarning, message="metadata")
+    import bqplot as bq
+from astropy.nddata import StdDevUncertainty
+from astropy.table import QTable
+
+from ._marks import PALETTE, marker_arrays, thin_labels, transparent_png
+
+__all__ = ["LineIdentifier", "MODES"]
+
+#: Mouse modes of the plot: what a click or drag on the plot area does.
+MODES = {
+    "pan/zoom": "drag to pan, wheel to zoom",
+    "identify": "click near a feature to lock the nearest predicted line",
+}
+
+_KMS = u.km / u.s
+_FALLBACK_CONVENTIONS = ("optical", "radio", "relativistic")
+_STRONG_FRACTION = 0.25      # strength >= this fraction of the strongest line -> emphasised style
+_RECULL_TOLERANCE = 0.03     # re-thin labels when the on-screen line spacing changes by more than 3 %
+
+
+def _physics(module):
+    """Import ``zline.physics.<module>``, with a plain error if that part is not installed."""
+    try:
+        return importlib.import_module(f"zline.physics.{module}")
+    except ImportError as exc:
+        raise RuntimeError(f"zline.physics.{module} is not available ({exc}); the widget needs it "
+                           f"for this action") from exc
+
+
+def _conventions():
+    try:
+        return tuple(_physics("kinematics").CONVENTIONS)
+    except (RuntimeError, AttributeError):
+        return _FALLBACK_CONVENTIONS
+
+
+def _is_spectrum(obj):
+    return hasattr(obj, "spectral_axis") and hasattr(obj, "flux")
+
+
+@dataclasses.dataclass
+class _Entry:
+    """One locked identification: the physics `Lock` plus what the widget knows about it."""
+
+    lock: object
+    strength: float
+    fit_message: str = ""
+
+
+@dataclasses.dataclass
+class _Group:
+    """Predicted lines drawn in one style: one NaN-separated Lines mark and one Label mark."""
+
+    key: tuple
+    index: np.ndarray        # rows of the line set in this group
+    rest: np.ndarray         # rest positions, spectrum unit
+    rest_vertices: np.ndarray
+    marker: object
+    label: object
+
+
+class LineIdentifier(W.VBox):
+    """Overlay predicted lines on a spectrum at a trial redshift, lock identifications, solve z.
+
+    Parameters
+    ----------
+    spectrum : str, path, bytes or `specutils.Spectrum`
+        A FITS file (path or its bytes, read with `zline.physics.spectra.read_spectrum`) or a
+        spectrum already read.
+    lines : str or `~astropy.table.QTable`
+        Name of a line set of `zline.physics.catalog.LINE_SETS`, or a table with columns
+        ``label``, ``rest`` (spectral Quantity) and optionally ``species``, ``strength``, ``kind``.
+    z : float
+        Trial redshift.
+    velocity : `~astropy.units.Quantity` ['speed']
+        Trial velocity on top of ``z``.
+    convention : str
+        Velocity convention, one of `zline.physics.kinematics.CONVENTIONS`.
+    medium : {"vacuum", "air"} or None
+        Medium of the spectral axis; needed when the spectrum does not say
+        (``spectrum.meta["zline"]["medium"]``). The spectrum's own statement wins.
+    width : int
+        Figure width in pixels (also the decimation resolution).
+    label_spacing : float
+        Labels closer than this many pixels are thinned; the stronger line keeps its label.
+
+    Attributes
+    ----------
+    figure : `bqplot.Figure`
+        The plot (class ``zline-plot``).
+    locks : tuple of `zline.physics.identify.Lock`
+        The locked identifications, in locking order.
+    """
+
+    z = T.Float(0.0, help="trial redshift")
+    velocity = T.Float(0.0, help="trial velocity on top of z, km/s")
+    convention = T.Unicode("optical", help="velocity convention")
+    mode = T.Unicode("pan/zoom", help=f"mouse mode of the plot, one of {sorted(MODES)}")
+
+    def __init__(self, spectrum, lines="galaxy-emission", z=0.0, velocity=0.0 * _KMS,
+                 convention="optical", medium=None, width=960, label_spacing=14.0, **kwargs):
+        super().__init__(**kwargs)
+        if not isinstance(velocity, u.Quantity) or not velocity.unit.is_equivalent(_KMS):
+            raise u.UnitTypeError(f"LineIdentifier: 'velocity' must be a Quantity with a speed unit "
+                                  f"(e.g. 120 * u.km / u.s); got {velocity!r}")
+        conventions = _conventions()
+        if convention not in conventions:
+            raise ValueError(f"LineIdentifier: 'convention' must be one of {sorted(conventions)}; "
+                             f"got {convention!r}")
+        self._medium_arg = medium
+        self._width = int(width)
+        self._plot_px = max(self._width - 90, 100)
+        self._label_spacing = float(label_spacing)
+        self._entries = []
+        self._groups = []
+        self._solution = None
+        self._cull_key = None
+        self._syncing = False
+        self._source_name = None
+        self._rest = np.zeros(0)
+        self._labels = np.zeros(0, dtype=object)
+        self._species = np.zeros(0, dtype=object)
+        self._strength = np.zeros(0)
+        self._current_factor = 1.0
+        self._ready = False
+
+        self._build_figure()
+        self._build_controls(conventions)
+        self._set_spectrum(self._read(spectrum, medium), source=spectrum)
+        self._set_lines(lines)
+        with self.hold_trait_notifications():
+            self.z = float(z)
+            self.velocity = float(velocity.to_value(_KMS))
+            self.convention = convention
+        self._ready = True
+        self._sync_controls()
+        self._apply_shift(force_labels=True)
+        self.children = [self._header, self.figure, self._controls_box, self._lock_box, self._status]
+
+    # ------------------------------------------------------------------ building
+    def _build_figure(self):
+        self._xs = bq.LinearScale()
+        self._ys = bq.LinearScale()
+        sc = {"x": self._xs, "y": self._ys}
+        self._xaxis = bq.Axis(scale=self._xs, label="", grid_lines="none")
+        self._yaxis = bq.Axis(scale=self._ys, orientation="vertical", label="", grid_lines="none",
+                              label_offset="50px")
+        self._band = bq.Lines(x=[0.0, 1.0], y=[[0.0, 0.0], [0.0, 0.0]], scales=sc, fill="between",
+                              fill_colors=[PALETTE["band"]], fill_opacities=[0.35], colors=[PALETTE["band"]],
+                              stroke_width=0, labels=["uncertainty"])
+        self._line = bq.Lines(x=[0.0, 1.0], y=[0.0, 0.0], scales=sc, colors=[PALETTE["spectrum"]],
+                              stroke_width=1, labels=["spectrum"])
+        self._masked = bq.Scatter(x=[], y=[], scales=sc, colors=[PALETTE["masked"]], marker="triangle-up",
+                                  default_size=16, labels=["masked"])
+        self._locked = bq.Lines(x=[np.nan], y=[np.nan], scales=sc, colors=[PALETTE["locked"]],
+                                stroke_width=3, labels=["locked"])
+        self._locked_labels = bq.Label(x=[], y=[], text=[], scales=sc, colors=[PALETTE["locked"]],
+                                       default_size=13, font_weight="bolder", rotate_angle=-90,
+                                       align="end", x_offset=-4, y_offset=0)
+        self._catcher = bq.Image(image=W.Image(value=transparent_png(), format="png"), x=[0.0, 1.0],
+                                 y=[0.0, 1.0], scales=sc)
+        self._catcher.on_element_click(self._on_catcher_click)
+        self._panzoom = bq.interacts.PanZoom(scales={"x": [self._xs], "y": [self._ys]})
+        self.figure = bq.Figure(
+            marks=[], axes=[self._xaxis, self._yaxis], interaction=self._panzoom,
+            fig_margin=dict(top=20, bottom=45, left=70, right=20), animation_duration=0, padding_y=0,
+            layout=W.Layout(width=f"{self._width}px", height="440px"))
+        self.figure.add_class("zline-plot")
+        self._xs.observe(self._on_view, names=["min", "max"])
+        self._ys.observe(self._on_yview, names=["min", "max"])
+
+    def _build_controls(self, conventions):
+        self._header = W.HTML()
+        self._slider = W.FloatSlider(value=0.0, min=-0.01, max=2.0, step=0.001, description="z",
+                                     readout_format=".5f", continuous_update=True,
+                                     layout=W.Layout(width="520px"))
+        self._slider.add_class("zline-z")
+        self._fine = W.ToggleButton(value=False, description="fine", tooltip="narrow the slider around z")
+        self._z_text = W.FloatText(value=0.0, description="exact z", step=1e-5, layout=W.Layout(width="210px"))
+        self._v_text = W.FloatText(value=0.0, description="v [km/s]", step=1.0, layout=W.Layout(width="210px"))
+        self._conv = W.Dropdown(options=list(conventions), value="optical", description="convention",
+                                layout=W.Layout(width="230px"))
+        self._set_menu = W.Dropdown(options=[], description="line set", layout=W.Layout(width="260px"))
+        self._mode = W.ToggleButtons(options=list(MODES), value="pan/zoom",
+                                     tooltips=[MODES[m] for m in MODES])
+        self._mode.add_class("zline-mode")
+        self._jump = W.Dropdown(options=[], description="line", layout=W.Layout(width="230px"))
+        self._jump_button = W.Button(description="zoom to line")
+        self._full_button = W.Button(description="whole spectrum")
+        self._solve_button = W.Button(description="solve z", button_style="primary")
+        self._undo_button = W.Button(description="drop last lock")
+        self._save_path = W.Text(value="zline-session.ecsv", description="save as",
+                                 layout=W.Layout(width="300px"))
+        self._save_button = W.Button(description="save")
+        self._upload = W.FileUpload(accept=".fits,.fit,.fts", multiple=False, description="open FITS")
+        self._results = W.HTML(value="<i>No locked lines yet.</i>")
+        self._results.add_class("zline-results")
+        self._status = W.HTML()
+        self._status.add_class("zline-status")
+        self._controls_box = W.VBox([
+            W.HBox([self._slider, self._fine, self._z_text]),
+            W.HBox([self._v_text, self._conv, self._set_menu]),
+            W.HBox([self._mode, self._jump, self._jump_button, self._full_button]),
+        ])
+        self._lock_box = W.VBox([
+            W.HBox([self._solve_button, self._undo_button, self._save_path, self._save_button, self._upload]),
+            self._results,
+        ])
+        self._slider.observe(self._guard(self._on_slider), names="value")
+        self._fine.observe(self._guard(self._on_fine), names="value")
+        self._z_text.observe(self._guard(self._on_z_text), names="value")
+        self._v_text.observe(self._guard(self._on_v_text), names="value")
+        self._conv.observe(self._guard(self._on_conv), names="value")
+        self._set_menu.observe(self._guard(self._on_set_menu), names="value")
+        self._mode.observe(self._guard(self._on_mode_button), names="value")
+        self._jump_button.on_click(self._guard(lambda _: self.zoom_to(self._jump.value)))
+        self._full_button.on_click(self._guard(lambda _: self.zoom_to(None)))
+        self._solve_button.on_click(self._guard(lambda _: self.solve()))
+        self._undo_button.on_click(self._guard(lambda _: self.unlock(len(self._entries) - 1)
+                                               if self._entries else self._say("Nothing to drop.")))
+        self._save_button.on_click(self._guard(lambda _: self.save(self._save_path.value, overwrite=True)))
+        self._upload.observe(self._guard(self._on_upload), names="value")
+
+    def _guard(self, handler):
+        """Wrap a UI callback so that any error lands in the status area in plain words."""
+        def wrapped(*args):
+            try:
+                handler(*args)
+            except Exception as exc:    # noqa: BLE001 - shown to the user, not swallowed
+                self._say(f"{type(exc).__name__}: {exc}", level="error")
+        return wrapped
+
+    # ------------------------------------------------------------------ status
+    def _say(self, message, level="info"):
+        colour = {"info": "#000000", "warning": "#B35900", "error": "#B00020"}[level]
+        word = {"info": "", "warning": "Warning: ", "error": "Problem: "}[level]
+        self._status.value = (f'<div class="zline-{level}" style="color:{colour}">'
+                              f"{html.escape(word + message)}</div>")
+
+    @property
+    def status(self):
+        """Plain text of the status area (last message shown to the user)."""
+        import re
+        return html.unescape(re.sub(r"<[^>]+>", "", self._status.value))
+
+    # ------------------------------------------------------------------ spectrum
+    @staticmethod
+    def _read(source, medium):
+        if _is_spectrum(source):
+            return source
+        spectra = _physics("spectra")
+        if isinstance(source, (bytes, bytearray, memoryview)):
+            return spectra.read_spectrum(io.BytesIO(bytes(source)), medium=medium)
+        if isinstance(source, (str, os.PathLike)):
+            return spectra.read_spectrum(source, medium=medium)
+        raise TypeError(f"LineIdentifier: 'spectrum' must be a FITS path, FITS bytes or a specutils "
+                        f"Spectrum; got {type(source).__name__}")
+
+    def load(self, source, medium=None):
+        """Replace the spectrum (path, FITS bytes or Spectrum); locks are cleared.
+
+        A problem is shown in the status area and raised.
+        """
+        try:
+            spectrum = self._read(source, medium if medium is not None else self._medium_arg)
+            self._set_spectrum(spectrum, source=source)
+        except Exception as exc:
+            self._say(f"could not open {self._describe_source(source)}: {exc}", level="error")
+            raise
+        self._set_lines(self._lines_arg)
+        self._apply_shift(force_labels=True)
+
+    @staticmethod
+    def _describe_source(source):
+        if isinstance(source, (str, os.PathLike)):
+            return f"file {os.fspath(source)!r}"
+        if isinstance(source, (bytes, bytearray, memoryview)):
+            return f"the uploaded data ({len(bytes(source))} bytes)"
+        return "the spectrum"
+
+    def _set_spectrum(self, spectrum, source=None):
+        meta = dict(spectrum.meta.get("zline", {}) or {}) if hasattr(spectrum, "meta") else {}
+        xunit = spectrum.spectral_axis.unit
+        self._is_length = xunit.physical_type == "length"
+        medium = meta.get("medium") or self._medium_arg
+        if medium is None:
+            if self._is_length:
+                raise ValueError("LineIdentifier: the spectrum does not say whether its wavelengths are in "
+                                 "air or vacuum; pass medium='air' or medium='vacuum'")
+            medium = "vacuum"
+        if medium not in ("air", "vacuum"):
+            raise ValueError(f"LineIdentifier: 'medium' must be 'air' or 'vacuum'; got {medium!r}")
+        x = np.asarray(spectrum.spectral_axis.value, dtype=float)
+        flux = np.asarray(spectrum.flux.value, dtype=float)
+        if flux.ndim != 1:
+            raise ValueError(f"LineIdentifier: need a 1D spectrum; the flux has shape {flux.shape}")
+        order = np.argsort(x, kind="stable")
+        x, flux = x[order], flux[order]
+        mask = np.zeros(x.shape, bool) if spectrum.mask is None else np.asarray(spectrum.mask, bool)[order]
+        mask |= ~np.isfinite(flux)
+        err = None
+        if spectrum.uncertainty is not None:
+            err = np.asarray(spectrum.uncertainty.represent_as(StdDevUncertainty).array, float)[order]
+        decimate = _physics("decimate")
+        shown = np.where(mask, np.nan, flux)
+        self.spectrum = spectrum
+        self._meta = meta
+        self._medium = medium
+        self._xunit = xunit
+        self._x = x
+        self._mask = mask
+        self._pyramid = decimate.DecimationPyramid(x, shown)
+        self._band_pyramids = None
+        if err is not None:
+            self._band_pyramids = (decimate.DecimationPyramid(x, shown - err),
+                                   decimate.DecimationPyramid(x, shown + err))
+        good = flux[~mask]
+        if good.size == 0:
+            raise ValueError("LineIdentifier: every pixel of the spectrum is masked or not finite")
+        lo, hi = np.percentile(good, [0.5, 99.5])
+        span = (hi - lo) or abs(hi) or 1.0
+        self._y0, self._y1 = lo - 0.08 * span, hi + 0.45 * span
+        self._pixel = float(np.median(np.diff(x))) if x.size > 1 else 1.0
+        self._entries = []
+        self._solution = None
+        self._source_name = os.fspath(source) if isinstance(source, (str, os.PathLike)) else meta.get("file")
+        kind = {"length": "wavelength", "frequency": "frequency", "energy": "energy"}.get(
+            str(xunit.physical_type), str(xunit.physical_type))
+        where = f" in {medium}" if self._is_length else ""
+        self._xaxis.label = f"observed {kind}{where} [{xunit.to_string('unicode')}]"
+        funit = spectrum.flux.unit.to_string("unicode") if spectrum.flux.unit != u.dimensionless_unscaled else ""
+        self._yaxis.label = f"flux [{funit}]" if funit else "flux"
+        name = html.escape(os.path.basename(self._source_name)) if self._source_name else "spectrum"
+        assumed = " (medium assumed: no keyword in the file)" if meta.get("medium_assumed") else ""
+        self._header.value = (f"<b>{name}</b>: {x.size} pixels, {x[0]:.6g}-{x[-1]:.6g} "
+                              f"{html.escape(xunit.to_string('unicode'))}, {medium}{html.escape(assumed)}")
+        with self._xs.hold_trait_notifications(), self._ys.hold_trait_notifications():
+            self._ys.min, self._ys.max = float(self._y0), float(self._y1)
+            self._xs.min, self._xs.max = float(x[0]), float(x[-1])
+        self._redraw_spectrum()
+        self._redraw_locks()
+        self._show_results()
+
+    # ------------------------------------------------------------------ line set
+    def _set_lines(self, lines):
+        self._lines_arg = lines
+        if isinstance(lines, str):
+            catalog = _physics("catalog")
+            names = list(catalog.LINE_SETS)
+            if lines not in names:
+                raise ValueError(f"LineIdentifier: 'lines' must be one of {sorted(names)} or a table; "
+                                 f"got {lines!r}")
+            table = catalog.line_set(lines, medium=self._medium, unit=self._xunit)
+            self._set_name = lines
+        elif hasattr(lines, "colnames"):
+            missing = {"label", "rest"} - set(lines.colnames)
+            if missing:
+                raise ValueError(f"LineIdentifier: the 'lines' table lacks column(s) {sorted(missing)}; "
+                                 f"it has {lines.colnames}")
+            table = lines
+            names = []
+            self._set_name = "custom"
+        else:
+            raise TypeError(f"LineIdentifier: 'lines' must be a line-set name or a table; "
+                            f"got {type(lines).__name__}")
+        n = len(table)
+        rest = table["rest"]
+        if not isinstance(rest, u.Quantity):
+            raise u.UnitTypeError("LineIdentifier: the 'rest' column of 'lines' must carry a spectral unit")
+        self._rest = np.asarray(rest.to_value(self._xunit, equivalencies=u.spectral()), dtype=float)
+        self._labels = np.array([str(s) for s in table["label"]], dtype=object)
+        self._species = (np.array([str(s) for s in table["species"]], dtype=object)
+                         if "species" in table.colnames else np.full(n, "", dtype=object))
+        self._strength = (np.asarray(table["strength"], dtype=float) if "strength" in table.colnames
+                          else np.ones(n))
+        kinds = (np.array([str(s) for s in table["kind"]], dtype=object) if "kind" in table.colnames
+                 else np.full(n, "other", dtype=object))
+        self._line_table = table
+        top = np.nanmax(self._strength) if n else 1.0
+        strong = self._strength >= _STRONG_FRACTION * top
+        self._groups = []
+        sc = {"x": self._xs, "y": self._ys}
+        for kind in sorted(set(kinds)):
+            for is_strong in (True, False):
+                index = np.flatnonzero((kinds == kind) & (strong == is_strong))
+                if index.size == 0:
+                    continue
+                colour = PALETTE.get(kind, PALETTE["other"])
+                tag = f"lines-{kind}-{'strong' if is_strong else 'weak'}"
+                rx, ry = marker_arrays(self._rest[index], self._y0, self._y1)
+                marker = bq.Lines(x=rx, y=ry, scales=sc, colors=[colour], labels=[tag],
+                                  stroke_width=2.0 if is_strong else 1.0,
+                                  opacities=[0.95 if is_strong else 0.6],
+                                  line_style="solid" if is_strong else "dashed")
+                label = bq.Label(x=self._rest[index], y=np.full(index.size, self._y1), scales=sc,
+                                 text=[""] * index.size, colors=[colour], rotate_angle=-90, align="end",
+                                 default_size=12 if is_strong else 10, x_offset=-3, y_offset=2,
+                                 font_weight="bold" if is_strong else "normal")
+                self._groups.append(_Group((kind, is_strong), index, self._rest[index], rx, marker, label))
+        if self._set_name == "custom":
+            try:
+                names = list(_physics("catalog").LINE_SETS)
+            except (RuntimeError, AttributeError):
+                names = []
+            names.append("custom")
+        self._syncing = True
+        try:
+            if list(self._set_menu.options) != names:
+                self._set_menu.options = names
+            if self._set_menu.value != self._set_name:
+                self._set_menu.value = self._set_name
+        finally:
+            self._syncing = False
+        by_strength = np.argsort(-self._strength, kind="stable")
+        self._jump.options = [(f"{self._labels[i]}", int(i)) for i in by_strength]
+        self._cull_key = None
+        self.figure.marks = ([self._band, self._line, self._masked]
+                             + [g.marker for g in self._groups] + [g.label for g in self._groups]
+                             + [self._locked, self._locked_labels, self._catcher])
+
+    # ------------------------------------------------------------------ shifting
+    def _factor(self):
+        kinematics = _physics("kinematics")
+        return float(kinematics.shift_factor(self.z, self.velocity * _KMS, self.convention))
+
+    def _observed(self, rest, factor):
+        return rest * factor if self._is_length else rest / factor
+
+    def _apply_shift(self, force_labels=False):
+        factor = self._factor()
+        self._current_factor = factor
+        for g in self._groups:
+            with g.marker.hold_sync():
+                g.marker.x = self._observed(g.rest_vertices, factor)
+            with g.label.hold_sync():
+                g.label.x = self._observed(g.rest, factor)
+        self._cull_labels(factor, force=force_labels)
+
+    def _cull_labels(self, factor, force=False):
+        span = (self._xs.max - self._xs.min) if self._xs.max is not None else 1.0
+        key = (factor if self._is_length else 1.0 / factor) / span
+        if not force and self._cull_key is not None and abs(key / self._cull_key - 1) < _RECULL_TOLERANCE:
+            return
+        self._cull_key = key
+        observed = self._observed(self._rest, factor)
+        pixels = (observed - self._xs.min) / span * self._plot_px
+        show = thin_labels(pixels, self._strength, self._label_spacing)
+        for g in self._groups:
+            text = [self._labels[i] if show[i] else "" for i in g.index]
+            if list(g.label.text) != text:
+                g.label.text = text
+
+    def observed_positions(self):
+        """Predicted observed positions of every line of the set at the current z and velocity."""
+        return self._observed(self._rest, self._factor()) * self._xunit
+
+    # ------------------------------------------------------------------ view
+    def _on_view(self, change):
+        if self._xs.min is None or self._xs.max is None or self._xs.max <= self._xs.min:
+            return
+        self._redraw_spectrum()
+        self._cull_labels(self._current_factor)
+
+    def _on_yview(self, change):
+        self._sync_catcher()
+
+    def _sync_catcher(self):
+        if None in (self._xs.min, self._xs.max, self._ys.min, self._ys.max):
+            return
+        with self._catcher.hold_sync():
+            self._catcher.x = [float(self._xs.min), float(self._xs.max)]
+            self._catcher.y = [float(self._ys.min), float(self._ys.max)]
+
+    def _redraw_spectrum(self):
+        xmin, xmax = float(self._xs.min), float(self._xs.max)
+        x, y = self._pyramid.window(xmin, xmax, self._plot_px)
+        with self._line.hold_sync():
+            self._line.x, self._line.y = x, y
+        if self._band_pyramids is not None:
+            bx, blo = self._band_pyramids[0].window(xmin, xmax, self._plot_px)
+            bx2, bhi = self._band_pyramids[1].window(xmin, xmax, self._plot_px)
+            if bx2.shape != bx.shape or not np.array_equal(bx2, bx):
+                bhi = np.interp(bx, bx2, bhi)
+            with self._band.hold_sync():
+                self._band.x = bx
+                self._band.y = np.vstack([blo, bhi])
+            self._band.visible = True
+        else:
+            self._band.visible = False
+        inside = np.flatnonzero(self._mask & (self._x >= xmin) & (self._x <= xmax))
+        stride = max(1, inside.size // (2 * self._plot_px))
+        mx = self._x[inside[::stride]]
+        with self._masked.hold_sync():
+            self._masked.x = mx
+            self._masked.y = np.full(mx.size, self._y0 + 0.02 * (self._y1 - self._y0))
+        self._sync_catcher()
+
+    def zoom_to(self, line):
+        """Zoom the plot onto one line of the set (label or row index); None shows everything."""
+        if line is None:
+            self._xs.min, self._xs.max = float(self._x[0]), float(self._x[-1])
+            return
+        i = self._line_index(line)
+        centre = float(self._observed(self._rest[i], self._factor()))
+        half = 60 * abs(self._pixel)
+        with self._xs.hold_trait_notifications():
+            self._xs.min, self._xs.max = centre - half, centre + half
+        if not self._x[0] - half <= centre <= self._x[-1] + half:
+            self._say(f"{self._labels[i]} falls outside the spectrum at this redshift", level="warning")
+
+    def _line_index(self, line):
+        if isinstance(line, (int, np.integer)) and not isinstance(line, bool):
+            if not 0 <= line < len(self._rest):
+                raise IndexError(f"line index {line} is out of range 0..{len(self._rest) - 1}")
+            return int(line)
+        hits = np.flatnonzero(self._labels == line)
+        if hits.size == 0:
+            raise KeyError(f"no line labelled {line!r} in line set {self._set_name!r}")
+        return int(hits[0])
+
+    # ------------------------------------------------------------------ controls <-> traits
+    def _sync_controls(self):
+        """Push trait values into the controls (compare before assign; one message per control)."""
+        self._syncing = True
+        try:
+            self._place_slider(self.z)
+            if self._z_text.value != self.z:
+                self._z_text.value = self.z
+            if self._v_text.value != self.velocity:
+                self._v_text.value = self.velocity
+            if self._conv.value != self.convention:
+                self._conv.value = self.convention
+            mode = self.mode
+            if self._mode.value != mode:
+                self._mode.value = mode
+        finally:
+            self._syncing = False
+
+    def _slider_range(self, z):
+        if self._fine.value:
+            half = 0.005 * (1 + abs(z))
+            return z - half, z + half, 1e-5
+        hi = 2.0
+        while hi < z:
+            hi *= 2
+        return min(-0.01, z), hi, 0.001
+
+    def _place_slider(self, z, recentre=False):
+        s = self._slider
+        lo, hi, step = self._slider_range(z)
+        if not recentre and s.min <= z <= s.max and s.step == step:
+            lo, hi = s.min, s.max
+        with s.hold_sync():
+            # widen first, then set the value, then narrow: the slider clamps its value to [min, max]
+            if s.max < hi:
+                s.max = hi
+            if s.min > lo:
+                s.min = lo
+            if s.value != z:
+                s.value = z
+            if s.max != hi:
+                s.max = hi
+            if s.min != lo:
+                s.min = lo
+            if s.step != step:
+                s.step = step
+            fmt = ".6f" if step < 1e-4 else ".4f"
+            if s.readout_format != fmt:
+                s.readout_format = fmt
+
+    def _on_slider(self, change):
+        if self._syncing:
+            return
+        if change["new"] != self.z:
+            self.z = float(change["new"])
+
+    def _on_fine(self, change):
+        self._syncing = True
+        try:
+            self._place_slider(self.z, recentre=True)
+        finally:
+            self._syncing = False
+
+    def _on_z_text(self, change):
+        if not self._syncing and change["new"] != self.z:
+            self.z = float(change["new"])
+
+    def _on_v_text(self, change):
+        if not self._syncing and change["new"] != self.velocity:
+            self.velocity = float(change["new"])
+
+    def _on_conv(self, change):
+        if not self._syncing and change["new"] != self.convention:
+            self.convention = change["new"]
+
+    def _on_mode_button(self, change):
+        if not self._syncing and change["new"] != self.mode:
+            self.mode = change["new"]
+
+    def _on_set_menu(self, change):
+        if self._syncing or change["new"] in (None, "custom") or change["new"] == self._set_name:
+            return
+        self._set_lines(change["new"])
+        self._apply_shift(force_labels=True)
+
+    @T.validate("convention")
+    def _valid_convention(self, proposal):
+        conventions = _conventions()
+        if proposal["value"] not in conventions:
+            raise T.TraitError(f"'convention' must be one of {sorted(conventions)}; got {proposal['value']!r}")
+        return proposal["value"]
+
+    @T.validate("mode")
+    def _valid_mode(self, proposal):
+        if proposal["value"] not in MODES:
+            raise T.TraitError(f"'mode' must be one of {sorted(MODES)}; got {proposal['value']!r}")
+        return proposal["value"]
+
+    @T.observe("z", "velocity", "convention")
+    def _on_shift_traits(self, change):
+        if not self._ready:
+            return
+        self._sync_controls()
+        self._apply_shift()
+
+    @T.observe("mode")
+    def _on_mode(self, change):
+        self.figure.interaction = None if change["new"] == "identify" else self._panzoom
+        self._sync_controls()
+
+    # ------------------------------------------------------------------ locking
+    @property
+    def locks(self):
+        """The locked identifications (`zline.physics.identify.Lock`), in locking order."""
+        return tuple(e.lock for e in self._entries)
+
+    def _on_catcher_click(self, mark, content):
+        try:
+            if self.mode != "identify":
+                return
+            data = content.get("data") or {}
+            x = data.get("click_x")
+            if x is None:
+                return
+            self.lock(near=float(x) * self._xunit)
+        except Exception as exc:    # noqa: BLE001 - shown to the user
+            self._say(f"{type(exc).__name__}: {exc}", level="error")
+
+    def lock(self, near, line=None, note=""):
+        """Lock the predicted line nearest an observed position, at a fitted centroid.
+
+        Parameters
+        ----------
+        near : `~astropy.units.Quantity` [spectral]
+            Observed position of the feature (e.g. where the user clicked).
+        line : str or int, optional
+            Label or row of the line to lock; default: the predicted line nearest ``near``.
+        note : str
+            Free text kept with the lock.
+
+        Returns
+        -------
+        `zline.physics.identify.Lock`
+        """
+        if not isinstance(near, u.Quantity):
+            raise u.UnitTypeError(f"lock: 'near' must be a Quantity in a spectral unit "
+                                  f"(e.g. 6600 * u.AA); got {near!r}")
+        value = float(near.to_value(self._xunit, equivalencies=u.spectral()))
+        if len(self._rest) == 0:
+            raise ValueError("lock: the line set is empty")
+        predicted = self._observed(self._rest, self._factor())
+        i = self._line_index(line) if line is not None else int(np.nanargmin(np.abs(predicted - value)))
+        identify = _physics("identify")
+        fit, message = None, ""
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                fit = identify.fit_line(self.spectrum, value * self._xunit, label=str(self._labels[i]))
+            centre = fit.center.to(self._xunit, equivalencies=u.spectral())
+            centre_err = fit.center_err.to(self._xunit, equivalencies=u.spectral())
+            low, high = sorted(fit.window.to_value(self._xunit, equivalencies=u.spectral()))
+            if not fit.success:
+                raise ValueError(f"the optimizer did not converge ({fit.message})")
+            if not (np.isfinite(centre.value) and np.isfinite(centre_err.value) and centre_err.value > 0):
+                raise ValueError(f"the fitted centre {centre:.7g} +/- {centre_err:.2g} is not usable")
+            if not low <= centre.value <= high:
+                raise ValueError(f"the fitted centre {centre:.7g} left the fit window")
+            if not fit.detected:
+                raise ValueError(f"no line detected there (S/N {fit.snr:.2g})")
+        except Exception as exc:    # noqa: BLE001 - fall back to the position, and say so
+            fit = None
+            message = (f"the line fit near {value:.7g} {self._xunit} failed: {exc}. Locked at that "
+                       f"position, with one pixel ({abs(self._pixel):.3g} {self._xunit}) as its error")
+            centre = value * self._xunit
+            centre_err = abs(self._pixel) * self._xunit
+        lock = identify.Lock(label=str(self._labels[i]), rest=self._rest[i] * self._xunit, observed=centre,
+                             observed_err=centre_err, species=str(self._species[i]), note=str(note),
+                             medium=self._medium, fit=fit)
+        self._entries = [e for e in self._entries if e.lock.label != lock.label]
+        self._entries.append(_Entry(lock, float(self._strength[i]), message))
+        self._solution = None
+        self._redraw_locks()
+        self._show_results()
+        if message:
+            self._say(f"{lock.label}: {message}", level="warning")
+        else:
+            self._say(f"locked {lock.label} at {centre.value:.7g} +/- {centre_err.value:.2g} {self._xunit}")
+        return lock
+
+    def _entry_index(self, label_or_index):
+        if isinstance(label_or_index, (int, np.integer)) and not isinstance(label_or_index, bool):
+            if not -len(self._entries) <= label_or_index < len(self._entries):
+                raise IndexError(f"lock index {label_or_index} is out of range; there are "
+                                 f"{len(self._entries)} locks")
+            return int(label_or_index) % len(self._entries)
+        for k, e in enumerate(self._entries):
+            if e.lock.label == label_or_index:
+                return k
+        raise KeyError(f"no locked line labelled {label_or_index!r}; locked: "
+                       f"{[e.lock.label for e in self._entries]}")
+
+    def unlock(self, label_or_index):
+        """Remove a lock, by its label or its position in `locks`."""
+        k = self._entry_index(label_or_index)
+        gone = self._entries.pop(k)
+        self._solution = None
+        self._redraw_locks()
+        self._show_results()
+        self._say(f"dropped the lock on {gone.lock.label}")
+
+    def annotate(self, label, note):
+        """Attach a free-text note to a lock (label or index)."""
+        k = self._entry_index(label)
+        old = self._entries[k].lock
+        self._entries[k].lock = dataclasses.replace(old, note=str(note))
+        self._show_results()
+
+    def _redraw_locks(self):
+        obs = np.array([e.lock.observed.to_value(self._xunit, equivalencies=u.spectral())
+                        for e in self._entries], dtype=float)
+        if obs.size:
+            x, y = marker_arrays(obs, self._y0, self._y1)
+        else:
+            x, y = np.array([np.nan]), np.array([np.nan])
+        with self._locked.hold_sync():
+            self._locked.x, self._locked.y = x, y
+        with self._locked_labels.hold_sync():
+            self._locked_labels.x = obs
+            self._locked_labels.y = np.full(obs.size, self._y1)
+            self._locked_labels.text = [e.lock.label for e in self._entries]
+
+    # ------------------------------------------------------------------ solving and tables
+    def solve(self):
+        """Solve the redshift from the locks and move the overlay there.
+
+        Returns
+        -------
+        z, z_err : float
+        """
+        if not self._entries:
+            raise ValueError("solve: lock at least one line first (identify mode: click a feature)")
+        identify = _physics("identify")
+        sol = identify.solve_redshift(list(self.locks), convention=self.convention)
+        z, z_err = float(sol.z), float(sol.z_err)
+        self._solution = sol
+        with self.hold_trait_notifications():
+            self.velocity = 0.0
+            self.z = z
+        self._show_results()
+        self._say(f"solved z = {z:.7f} +/- {z_err:.2g} from {len(self._entries)} line(s)")
+        return z, z_err
+
+    def _residuals(self):
+        if not self._entries:
+            return np.zeros(0) * _KMS
+        kinematics = _physics("kinematics")
+        observed = u.Quantity([e.lock.observed.to(self._xunit, equivalencies=u.spectral())
+                               for e in self._entries])
+        rest = u.Quantity([e.lock.rest.to(self._xunit, equivalencies=u.spectral()) for e in self._entries])
+        v = kinematics.velocity_from(observed, rest, convention=self.convention, z=self.z)
+        return (v - self.velocity * _KMS).to(_KMS)
+
+    _FIT_COLUMNS = ("flux", "fwhm", "fwhm_kms", "ew", "snr")
+
+    def table(self):
+        """One row per lock: ``label, species, rest, observed, observed_err, residual_kms, note`` and
+        the line fit (``fit_flux``, ``fit_flux_err``, ``fit_fwhm``, ... ``fit_snr``; NaN where no fit).
+
+        Returns
+        -------
+        `~astropy.table.QTable`
+            meta holds z, velocity, convention, medium, line set and file.
+        """
+        t = QTable()
+        xu = self._xunit
+        n = len(self._entries)
+        t["label"] = [e.lock.label for e in self._entries] if n else np.zeros(0, dtype=str)
+        t["species"] = [e.lock.species for e in self._entries] if n else np.zeros(0, dtype=str)
+        for name in ("rest", "observed", "observed_err"):
+            t[name] = u.Quantity([getattr(e.lock, name).to(xu, equivalencies=u.spectral())
+                                  for e in self._entries]) if n else np.zeros(0) * xu
+        t["residual_kms"] = self._residuals()
+        t["fitted"] = np.array([e.lock.fit is not None for e in self._entries], dtype=bool)
+        for name in self._FIT_COLUMNS:
+            for suffix in ("", "_err"):
+                attr = name + suffix
+                values = [getattr(e.lock.fit, attr, None) if e.lock.fit is not None else None
+                          for e in self._entries]
+                unit = next((v.unit for v in values if isinstance(v, u.Quantity)), None)
+                if all(v is None for v in values) and name == "snr" and suffix:
+                    continue
+                col = [np.nan if v is None else (v.to_value(unit) if isinstance(v, u.Quantity) else float(v))
+                       for v in values]
+                t["fit_" + attr] = np.array(col, dtype=float) * (unit if unit is not None else 1)
+        t["note"] = [e.lock.note for e in self._entries] if n else np.zeros(0, dtype=str)
+        t.meta.update(z=self.z, velocity=self.velocity * _KMS, convention=self.convention,
+                      medium=self._medium, line_set=self._set_name, file=self._source_name)
+        if self._solution is not None:
+            t.meta.update(z_err=float(self._solution.z_err), chi2_dof=float(self._solution.chi2_dof))
+        return t
+
+    def _show_results(self):
+        if not self._entries:
+            self._results.value = "<i>No locked lines yet.</i>"
+            return
+        try:
+            res = self._residuals().to_value(_KMS)
+        except RuntimeError:
+            res = np.full(len(self._entries), np.nan)
+        outliers = np.zeros(len(self._entries), bool)
+        head = ""
+        if self._solution is not None:
+            sol = self._solution
+            outliers = np.asarray(sol.outliers, bool)
+            head = (f"<p><b>z = {sol.z:.7f} &plusmn; {sol.z_err:.2g}</b> (1&sigma;), "
+                    f"&chi;&sup2;/dof = {sol.chi2_dof:.3g}, {sol.n_used} of {len(self._entries)} "
+                    f"line(s) used</p>")
+        rows = []
+        for e, r, bad in zip(self._entries, res, outliers):
+            lk = e.lock
+            fitted = "fit" if lk.fit is not None else "position only"
+            rows.append(f"<tr><td>{html.escape(lk.label)}</td><td>{lk.rest.value:.7g}</td>"
+                        f"<td>{lk.observed.value:.7g} &plusmn; {lk.observed_err.value:.2g}</td>"
+                        f"<td>{r:+.1f}</td><td>{fitted}{' (outlier)' if bad else ''}</td>"
+                        f"<td>{html.escape(lk.note)}</td></tr>")
+        unit = html.escape(self._xunit.to_string("unicode"))
+        self._results.value = (head + f"<table><tr><th>line</th><th>rest [{unit}]</th>"
+                               f"<th>observed [{unit}]</th><th>residual [km/s]</th><th>centre from</th>"
+                               f"<th>note</th></tr>{''.join(rows)}</table>")
+
+    # ------------------------------------------------------------------ upload, save, restore
+    def _on_upload(self, change):
+        files = change["new"]
+        if not files:
+            return
+        f = files[0]
+        try:
+            self.load(bytes(f["content"]))
+        except Exception:    # noqa: BLE001 - load() already put the reason in the status area
+            return
+        self._source_name = f.get("name", "upload")
+        self._say(f"opened {self._source_name}")
