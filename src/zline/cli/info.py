@@ -1,0 +1,65 @@
+"""``zline info FILE``: what the reader finds in a spectrum file (layout, axis, units, medium)."""
+
+import json
+
+from zline.cli import CommandError
+
+__all__ = ["COMMAND", "HELP", "add_arguments", "run", "format_text"]
+
+COMMAND = "info"
+HELP = "Describe the 1D spectrum in a FITS file: layout, spectral range, units, medium, assumptions."
+
+FORMATS = {"text": "aligned key: value lines", "json": "one JSON object (describe_spectrum keys)"}
+
+
+def _hdu(value):
+    """An HDU given on the command line: an integer index or an EXTNAME."""
+    try:
+        return int(value)
+    except ValueError:
+        return value
+
+
+def add_arguments(parser):
+    parser.add_argument("file", metavar="FILE", help="FITS file (.fits or .fits.gz)")
+    parser.add_argument("--hdu", type=_hdu, default=None, metavar="N|NAME",
+                        help="HDU index or EXTNAME (default: the first spectrum-like HDU)")
+    parser.add_argument("--format", default="text", choices=sorted(FORMATS),
+                        help="output format (default: text)")
+
+
+def format_text(info):
+    """Render a :func:`~zline.physics.spectra.describe_spectrum` dict as readable lines."""
+    lines = []
+    order = ["file", "hdu", "layout", "n_pixels", "spectral_min", "spectral_max", "spectral_unit",
+             "medium", "medium_assumed", "flux_unit", "uncertainty", "n_masked", "reversed",
+             "rest_value", "rest_unit", "velocity_convention"]
+    width = max(len(k) for k in order)
+    for key in order:
+        if key in info:
+            value = info[key]
+            if key == "flux_unit" and value == "":
+                value = "(dimensionless)"
+            lines.append(f"{key:<{width}}  {value}")
+    for key in ("assumptions", "notes"):
+        if info.get(key):
+            lines.append(f"{key}:")
+            lines.extend(f"  - {item}" for item in info[key])
+    if info.get("header"):
+        lines.append("header:")
+        lines.extend(f"  {k} = {v}" for k, v in info["header"].items())
+    return "\n".join(lines)
+
+
+def run(args):
+    from zline.physics.spectra import describe_spectrum, read_spectrum
+
+    if args.format not in FORMATS:  # argparse checks this too; kept for direct callers
+        raise CommandError(f"--format {args.format!r} is not one of {sorted(FORMATS)}")
+    spectrum = read_spectrum(args.file, hdu=args.hdu)  # SpectrumFormatError is a ValueError
+    info = describe_spectrum(spectrum)
+    if args.format == "json":
+        print(json.dumps(info, indent=2, sort_keys=True))
+    else:
+        print(format_text(info))
+    return 0
