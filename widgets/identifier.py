@@ -7,7 +7,6 @@ redshifting, fitting, solving, saving) comes from `zline.physics`.
 import dataclasses
 import html
 import importlib
-import io
 import os
 import warnings
 
@@ -66,6 +65,7 @@ class _Entry:
     lock: object
     strength: float
     fit_message: str = ""
+    fit_record: dict = None   # a restored fit (plain dict of values and unit strings)
 
 
 @dataclasses.dataclass
@@ -270,9 +270,7 @@ class LineIdentifier(W.VBox):
         if _is_spectrum(source):
             return source
         spectra = _physics("spectra")
-        if isinstance(source, (bytes, bytearray, memoryview)):
-            return spectra.read_spectrum(io.BytesIO(bytes(source)), medium=medium)
-        if isinstance(source, (str, os.PathLike)):
+        if isinstance(source, (bytes, bytearray, memoryview, str, os.PathLike)):
             return spectra.read_spectrum(source, medium=medium)
         raise TypeError(f"LineIdentifier: 'spectrum' must be a FITS path, FITS bytes or a specutils "
                         f"Spectrum; got {type(source).__name__}")
@@ -394,7 +392,9 @@ class LineIdentifier(W.VBox):
                          if "species" in table.colnames else np.full(n, "", dtype=object))
         self._strength = (np.asarray(table["strength"], dtype=float) if "strength" in table.colnames
                           else np.ones(n))
-        kinds = (np.array([str(s) for s in table["kind"]], dtype=object) if "kind" in table.colnames
+        # drawn apart by origin (computed from levels / tabulated); older tables may only have "kind"
+        column = "origin" if "origin" in table.colnames else "kind" if "kind" in table.colnames else None
+        kinds = (np.array([str(s) for s in table[column]], dtype=object) if column
                  else np.full(n, "other", dtype=object))
         self._line_table = table
         top = np.nanmax(self._strength) if n else 1.0
@@ -821,12 +821,11 @@ class LineIdentifier(W.VBox):
             t[name] = u.Quantity([getattr(e.lock, name).to(xu, equivalencies=u.spectral())
                                   for e in self._entries]) if n else np.zeros(0) * xu
         t["residual_kms"] = self._residuals()
-        t["fitted"] = np.array([e.lock.fit is not None for e in self._entries], dtype=bool)
+        t["fitted"] = np.array([self._has_fit(e) for e in self._entries], dtype=bool)
         for name in self._FIT_COLUMNS:
             for suffix in ("", "_err"):
                 attr = name + suffix
-                values = [getattr(e.lock.fit, attr, None) if e.lock.fit is not None else None
-                          for e in self._entries]
+                values = [self._fit_value(e, attr) for e in self._entries]
                 unit = next((v.unit for v in values if isinstance(v, u.Quantity)), None)
                 if all(v is None for v in values) and name == "snr" and suffix:
                     continue
@@ -839,6 +838,19 @@ class LineIdentifier(W.VBox):
         if self._solution is not None:
             t.meta.update(z_err=float(self._solution.z_err), chi2_dof=float(self._solution.chi2_dof))
         return t
+
+    @staticmethod
+    def _has_fit(entry):
+        return entry.lock.fit is not None or bool(entry.fit_record)
+
+    @staticmethod
+    def _fit_value(entry, attr):
+        if entry.lock.fit is not None:
+            return getattr(entry.lock.fit, attr, None)
+        item = (entry.fit_record or {}).get(attr)
+        if isinstance(item, dict) and "value" in item and "unit" in item:
+            return u.Quantity(item["value"], u.Unit(item["unit"]))
+        return item if isinstance(item, (int, float)) else None
 
     def _show_results(self):
         if not self._entries:
@@ -859,7 +871,7 @@ class LineIdentifier(W.VBox):
         rows = []
         for e, r, bad in zip(self._entries, res, outliers):
             lk = e.lock
-            fitted = "fit" if lk.fit is not None else "position only"
+            fitted = "fit" if self._has_fit(e) else "position only"
             rows.append(f"<tr><td>{html.escape(lk.label)}</td><td>{lk.rest.value:.7g}</td>"
                         f"<td>{lk.observed.value:.7g} &plusmn; {lk.observed_err.value:.2g}</td>"
                         f"<td>{r:+.1f}</td><td>{fitted}{' (outlier)' if bad else ''}</td>"
@@ -881,3 +893,89 @@ class LineIdentifier(W.VBox):
             return
         self._source_name = f.get("name", "upload")
         self._say(f"opened {self._source_name}")
+
+    def save(self, path, overwrite=False):
+        """Save the session (locks with their fits, z or the solution, settings, spectrum path).
+
+        Parameters
+        ----------
+        path : str or path-like
+            Session file to write (JSON).
+        overwrite : bool
+            Replace an existing file.
+
+        Returns
+        -------
+        pathlib.Path
+        """
+        session = _physics("session")
+        fits = [e.lock.fit if e.lock.fit is not None else e.fit_record for e in self._entries]
+        settings = {"z": self.z, "velocity": self.velocity * _KMS, "convention": self.convention,
+                    "medium": self._medium, "line_set": self._set_name, "mode": self.mode,
+                    "view": [float(self._xs.min), float(self._xs.max)] * self._xunit}
+        source = self._source_name
+        if source is not None and os.path.exists(source):
+            source = os.path.abspath(source)
+        try:
+            written = session.save_session(path, {"locks": list(self.locks), "fits": fits,
+                                                  "z": self._solution if self._solution is not None
+                                                  else self.z,
+                                                  "settings": settings, "spectrum": source},
+                                           overwrite=overwrite)
+        except FileExistsError:
+            self._say(f"{os.fspath(path)} exists already; pass overwrite=True to replace it",
+                      level="error")
+            raise
+        self._say(f"saved {len(self._entries)} lock(s) to {written}")
+        return written
+
+    @classmethod
+    def restore(cls, path, spectrum=None, lines=None, **kwargs):
+        """Re-open a session saved with `save`.
+
+        Parameters
+        ----------
+        path : str or path-like
+            Session file.
+        spectrum : optional
+            Spectrum to use instead of the file named in the session (needed when the session
+            came from an upload).
+        lines : optional
+            Line set instead of the saved one (needed when the session used a custom table).
+        **kwargs
+            Passed to `LineIdentifier`.
+        """
+        session = _physics("session")
+        doc = session.load_session(path)
+        settings = doc.get("settings") or {}
+        source = spectrum if spectrum is not None else doc.get("spectrum")
+        if source is None:
+            raise ValueError(f"restore: the session {os.fspath(path)!r} names no spectrum file; "
+                             f"pass spectrum=...")
+        line_set = lines if lines is not None else settings.get("line_set", "galaxy-emission")
+        if isinstance(line_set, str) and line_set == "custom":
+            raise ValueError(f"restore: the session {os.fspath(path)!r} used a custom line table; "
+                             f"pass lines=<that table>")
+        velocity = settings.get("velocity", 0.0 * _KMS)
+        kwargs.setdefault("medium", settings.get("medium"))
+        w = cls(source, lines=line_set, z=float(settings.get("z", 0.0)), velocity=velocity,
+                convention=settings.get("convention", "optical"), **kwargs)
+        fits = doc.get("fits") or []
+        if isinstance(fits, dict):
+            fits = [fits.get(lock.label) for lock in doc["locks"]]
+        for k, lock in enumerate(doc["locks"]):
+            hits = np.flatnonzero(w._labels == lock.label)
+            strength = float(w._strength[hits[0]]) if hits.size else 0.0
+            record = fits[k] if k < len(fits) and isinstance(fits[k], dict) else None
+            w._entries.append(_Entry(lock, strength, "", record))
+        view = settings.get("view")
+        if isinstance(view, u.Quantity) and view.size == 2:
+            lo, hi = view.to_value(w._xunit, equivalencies=u.spectral())
+            with w._xs.hold_trait_notifications():
+                w._xs.min, w._xs.max = float(lo), float(hi)
+        if settings.get("mode") in MODES:
+            w.mode = settings["mode"]
+        w._redraw_locks()
+        w._show_results()
+        w._say(f"restored {len(w._entries)} lock(s) from {os.fspath(path)}")
+        return w

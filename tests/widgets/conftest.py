@@ -163,3 +163,16 @@ def page(browser, tmp_path):
     pg.screenshot(path=str(tmp_path / "last.png"))
     ctx.close()
     assert not errors, errors
+
+
+@pytest.fixture
+def spectrum_file(tmp_path, spectrum):
+    """The invented spectrum as a linear-WCS FITS image with a vacuum wavelength axis."""
+    from astropy.io import fits
+    x = spectrum.spectral_axis.value
+    hdr = fits.Header()
+    hdr.update(CTYPE1="WAVE", CUNIT1="Angstrom", CRPIX1=1.0, CRVAL1=float(x[0]),
+               CDELT1=float(x[1] - x[0]), BUNIT="Jy", OBJECT="invented test galaxy")
+    path = tmp_path / "invented.fits"
+    fits.PrimaryHDU(np.asarray(spectrum.flux.value, dtype=np.float64), header=hdr).writeto(path)
+    return path

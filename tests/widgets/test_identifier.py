@@ -269,3 +269,54 @@ def test_upload_of_bytes_that_are_not_fits_shows_a_plain_error(w):
     assert "Problem" in w.status and "could not open" in w.status
     assert "Traceback" not in w.status
     assert np.asarray(w._line.x).size > 0       # the old spectrum stays on screen
+
+
+# ------------------------------------------------------------------ files, line sets, sessions
+def test_opens_a_fits_path_with_a_named_line_set(spectrum_file):
+    from zline.physics import catalog
+    w = LineIdentifier(spectrum_file, lines="galaxy-emission", z=0.1)
+    table = catalog.line_set("galaxy-emission", medium="vacuum", unit=u.AA)
+    assert sum(g.index.size for g in w._groups) == len(table)
+    assert {g.key[0] for g in w._groups} <= set(table["origin"])
+    assert "vacuum" in w._xaxis.label
+    frontend_update(w._set_menu, index=list(w._set_menu.options).index("hydrogen"))
+    assert sum(g.index.size for g in w._groups) == len(catalog.line_set("hydrogen"))
+    assert all(g.marker in w.figure.marks for g in w._groups)
+
+
+def test_upload_of_a_good_fits_replaces_the_spectrum(w, spectrum_file):
+    w.lock(near=7221 * u.AA)
+    data = spectrum_file.read_bytes()
+    frontend_update(w._upload, value=[{"name": "new.fits", "type": "application/fits", "size": len(data),
+                                       "content": memoryview(data), "last_modified": 1764633600000}])
+    assert "opened new.fits" in w.status
+    assert w.locks == ()                        # locks belonged to the previous spectrum
+
+
+def test_save_and_restore_round_trip(tmp_path, spectrum_file, lines):
+    w = LineIdentifier(spectrum_file, lines=lines, z=0.0995)
+    for x in (7221, 5509):
+        w.lock(near=x * u.AA)
+    w.lock(near=8500 * u.AA, line="L6585", note="no line here")
+    w.solve()
+    w.zoom_to("L6565")
+    path = w.save(tmp_path / "session.json")
+    with pytest.raises(FileExistsError):
+        w.save(tmp_path / "session.json")
+    assert "exists already" in w.status
+    with pytest.raises(ValueError, match="custom line table"):
+        LineIdentifier.restore(path)
+    r = LineIdentifier.restore(path, lines=lines)
+    assert r.z == w.z and r.convention == w.convention
+    assert [k.label for k in r.locks] == [k.label for k in w.locks]
+    for a, b in zip(r.locks, w.locks):
+        assert_quantity_allclose(a.observed, b.observed)
+        assert_quantity_allclose(a.observed_err, b.observed_err)
+        assert a.note == b.note
+    t0, t1 = w.table(), r.table()
+    assert t0.colnames == t1.colnames
+    for name in ("observed", "residual_kms", "fit_flux", "fit_fwhm", "fit_ew"):
+        assert_quantity_allclose(t1[name], t0[name], equal_nan=True)
+    assert t1["fitted"].tolist() == [True, True, False]
+    assert (r._xs.min, r._xs.max) == pytest.approx((w._xs.min, w._xs.max))
+    np.testing.assert_array_equal(np.asarray(r._locked.x), np.asarray(w._locked.x))
