@@ -451,9 +451,10 @@ def fit_line(spectrum, center, window=None, continuum_order=1, profile="gaussian
         good &= np.isfinite(err_all) & (err_all > 0)
     for a, b in _regions(exclude, sunit, label):
         good &= ~((x_all >= a) & (x_all <= b))
-    x = x_all[good]
-    y = y_all[good]
-    w_err = err_all[good] if err_all is not None else np.ones_like(y)
+    order_x = np.argsort(x_all[good], kind="stable")  # decreasing axes (frequency) too
+    x = x_all[good][order_x]
+    y = y_all[good][order_x]
+    w_err = err_all[good][order_x] if err_all is not None else np.ones_like(y)
 
     hw = max(0.5 * (hi - lo), 1e-300)
     x0 = 0.5 * (hi + lo)

@@ -290,3 +290,35 @@ def test_linefit_to_dict_is_plain():
     sp = make_spectrum(X, 5 + gauss(X, 6563.0, 2.0, 50.0), 0.1)
     d = fit_line(sp, 6563 * u.AA).to_dict()
     assert json.loads(json.dumps(d))["center"]["unit"] == "Angstrom"
+
+
+def test_decreasing_axis_same_result():
+    rng = np.random.default_rng(21)
+    y = 4 + gauss(X, 6563.2, 2.0, 50.0) + rng.normal(0, 0.3, X.size)
+    up = fit_line(make_spectrum(X, y, 0.3), 6562 * u.AA)
+    down = fit_line(make_spectrum(X[::-1], y[::-1], 0.3), 6562 * u.AA)
+    assert_quantity_allclose(down.center, up.center, rtol=1e-9)
+    assert_quantity_allclose(down.flux_err, up.flux_err, rtol=1e-6)
+
+
+@pytest.mark.filterwarnings("ignore::astropy.utils.exceptions.AstropyUserWarning")
+def test_agrees_with_specutils_fit_lines_on_noisy_data():
+    """Same data, same model, same weights: the same least-squares minimum as specutils."""
+    from astropy.modeling import models
+    from specutils.fitting import fit_lines
+
+    rng = np.random.default_rng(99)
+    noise = 0.4
+    y = 5 + 0.01 * (X - 6560) + gauss(X, 6563.4, 1.9, 45.0) + rng.normal(0, noise, X.size)
+    spec = make_spectrum(X, y, noise)
+    ours = fit_line(spec, 6563 * u.AA, window=[6530, 6600] * u.AA, fwhm=4 * u.AA)
+    init = (models.Gaussian1D(amplitude=9 * FUNIT, mean=6563 * u.AA, stddev=1.7 * u.AA)
+            + models.Linear1D(slope=0 * FUNIT / u.AA, intercept=5 * FUNIT))
+    ref = fit_lines(spec, init, window=SpectralRegion(6530 * u.AA, 6600 * u.AA), weights="unc")
+    g = ref[0]
+    assert ours.center.value == pytest.approx(g.mean.value, abs=1e-4 * ours.center_err.value
+                                              + 1e-6)
+    ref_flux = g.amplitude.value * g.stddev.value * math.sqrt(2 * math.pi)
+    assert ours.flux.value == pytest.approx(ref_flux, rel=1e-5)
+    assert ours.fwhm.value == pytest.approx(2 * math.sqrt(2 * math.log(2)) * g.stddev.value,
+                                            rel=1e-5)

@@ -200,3 +200,14 @@ def test_solution_to_dict_is_json():
     sol = solve_redshift(make_locks(0.2))
     d = json.loads(json.dumps(sol.to_dict()))
     assert d["residuals"]["unit"] == "km / s" and len(d["outliers"]) == len(REST)
+
+
+@pytest.mark.parametrize("convention", ["optical", "radio", "relativistic"])
+def test_velocity_consistent_with_kinematics_module(convention):
+    """The solver's velocity agrees with zline.physics.kinematics for one exact lock."""
+    from zline.physics.kinematics import velocity_from
+
+    rest, obs = 4862.721 * u.AA, 4870.0 * u.AA
+    sol = solve_redshift([Lock("Hb", rest, obs, 0.01 * u.AA)], convention=convention)
+    assert_quantity_allclose(sol.velocity, velocity_from(obs, rest, convention=convention),
+                             rtol=1e-9)
