@@ -120,6 +120,22 @@ class Lock:
             rest, obs = _air_to_vacuum(rest, air_formula), _air_to_vacuum(obs, air_formula)
         return float(rest.value), float(obs.value)
 
+    @classmethod
+    def from_fit(cls, label, rest, fit: LineFit, species="", note="", medium="vacuum") -> "Lock":
+        """Lock a line at the centre measured by `fit_line` (observed = fit.center +- center_err).
+
+        Raises ValueError when the fit failed or gave no finite positive centre error.
+        """
+        if not isinstance(fit, LineFit):
+            raise TypeError(f"Lock.from_fit {label!r}: 'fit' must be a LineFit, got "
+                            f"{type(fit).__name__}")
+        if not fit.success or not (np.isfinite(fit.center_err.value) and fit.center_err.value > 0):
+            raise ValueError(f"Lock.from_fit {label!r}: the fit has no usable centre "
+                             f"(success={fit.success}, center_err={fit.center_err}); "
+                             f"refit before locking")
+        return cls(label, rest, fit.center, fit.center_err, species=species, note=note,
+                   medium=medium, fit=fit)
+
     def to_dict(self) -> dict:
         """Plain-JSON dict (values with unit strings)."""
         def q(v):

@@ -322,3 +322,23 @@ def test_agrees_with_specutils_fit_lines_on_noisy_data():
     assert ours.flux.value == pytest.approx(ref_flux, rel=1e-5)
     assert ours.fwhm.value == pytest.approx(2 * math.sqrt(2 * math.log(2)) * g.stddev.value,
                                             rel=1e-5)
+
+
+def test_blend_upper_limits_for_absent_components():
+    """Halpha present, [N II] absent: the [N II] components get upper limits, Halpha does not."""
+    rng = np.random.default_rng(31)
+    x = np.linspace(6520.0, 6630.0, 441)
+    noise = 0.3
+    y = 2 + gauss(x, 6564.6, 2.0, 80.0) + rng.normal(0, noise, x.size)
+    fit = fit_line(make_spectrum(x, y, noise), 6564.6 * u.AA,
+                   components={"Ha": 6564.61 * u.AA, "N2a": 6549.86 * u.AA, "N2b": 6585.27 * u.AA},
+                   tie_width=True, tie_ratio={("N2b", "N2a"): 2.94}, fwhm=4.7 * u.AA)
+    by = {c.label: c for c in fit.components}
+    assert by["Ha"].upper_limit is None and by["Ha"].detected
+    assert by["N2a"].upper_limit is not None and by["N2b"].upper_limit is not None
+    assert by["N2b"].upper_limit.value == pytest.approx(2.94 * by["N2a"].upper_limit.value)
+    # white noise, two non-overlapping profiles F*(g_a + 2.94 g_b):
+    # sigma_F = noise * sqrt(2 sqrt(pi) sigma dx) / sqrt(1 + 2.94**2)
+    sigma = 4.7 / (2 * math.sqrt(2 * math.log(2)))
+    scale = noise * math.sqrt(2 * math.sqrt(math.pi) * sigma * (x[1] - x[0]))
+    assert by["N2a"].upper_limit.value == pytest.approx(3 * scale / math.hypot(1, 2.94), rel=0.1)

@@ -211,3 +211,33 @@ def test_velocity_consistent_with_kinematics_module(convention):
     sol = solve_redshift([Lock("Hb", rest, obs, 0.01 * u.AA)], convention=convention)
     assert_quantity_allclose(sol.velocity, velocity_from(obs, rest, convention=convention),
                              rtol=1e-9)
+
+
+def test_lock_from_fit_and_end_to_end_redshift():
+    """Fit two synthetic lines at a known z, lock them, solve: z recovered within errors."""
+    from astropy.nddata import StdDevUncertainty
+    from specutils import Spectrum
+
+    from zline.physics.fitting import fit_line
+
+    z = 0.0457
+    rng = np.random.default_rng(77)
+    x = np.linspace(4950.0, 6950.0, 8001)
+    y = np.full(x.size, 2.0)
+    for rest, flux in ((REST["Hb"], 30.0), (REST["Ha"], 90.0)):
+        mu = rest * (1 + z)
+        s = mu * 80.0 / C_KMS
+        y += flux * np.exp(-0.5 * ((x - mu) / s) ** 2) / (s * math.sqrt(2 * math.pi))
+    y += rng.normal(0, 0.2, x.size)
+    spec = Spectrum(flux=y * u.Jy, spectral_axis=x * u.AA,
+                    uncertainty=StdDevUncertainty(np.full(x.size, 0.2)))
+    locks = []
+    for label in ("Hb", "Ha"):
+        guess = REST[label] * (1 + z) * u.AA + 0.8 * u.AA
+        fit = fit_line(spec, guess, fwhm=4 * u.AA, label=label)
+        locks.append(Lock.from_fit(label, REST[label] * u.AA, fit, species="H I"))
+    sol = solve_redshift(locks)
+    assert abs(sol.z - z) < 4 * sol.z_err
+    assert locks[0].fit is not None and locks[0].observed == locks[0].fit.center
+    with pytest.raises(TypeError, match=r"'fit' must be a LineFit"):
+        Lock.from_fit("x", 1 * u.AA, {"center": 1})
