@@ -400,7 +400,11 @@ def _header_facts(header, primary):
 def _float_key(header, key, ctx, default=None):
     if key not in header:
         return default
-    value = header[key]
+    try:
+        value = header[key]
+    except Exception as exc:  # astropy's VerifyError on an unparsable card
+        ctx.fail(f"keyword {key} has an unparsable value ({type(exc).__name__}); expected a "
+                 f"finite number; fix the header card")
     if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
         ctx.fail(f"keyword {key} = {value!r} is not a number; expected a finite number; fix the "
                  f"header or pass arrays")
@@ -420,6 +424,10 @@ def _read_image(hdul, index, ctx, opts):
                  f"truncated")
     if not np.issubdtype(data.dtype, np.number):
         ctx.fail(f"image data of type {data.dtype} is not numeric")
+    naxes = [header.get(f"NAXIS{i}", 0) for i in range(1, header.get("NAXIS", 0) + 1)]
+    if int(np.prod(naxes)) != data.size:
+        ctx.fail(f"keywords NAXISn = {naxes} promise {int(np.prod(naxes))} values but "
+                 f"{data.size} were read; the file is probably truncated")
     shape = data.shape
     row, column = opts["row"], opts["column"]
     axis = 1
@@ -451,10 +459,14 @@ def _read_image(hdul, index, ctx, opts):
             axis = data.ndim - keep  # numpy axis order is reversed FITS order
             selector = (lambda a, k=keep: a.reshape(-1) if a.size == a.shape[k] else a)
             ctx.assume(f"NAXIS={data.ndim} with shape {shape}: read as 1D along FITS axis {axis}")
+        elif data.ndim == 2:
+            ctx.fail(f"holds a 2D image (NAXIS=2, shape {shape}); expected a 1D spectrum; pass "
+                     f"row= (spectral axis along NAXIS1) or column= (along NAXIS2) to take one "
+                     f"spectrum of it")
         else:
             ctx.fail(f"holds a {data.ndim}D image (NAXIS={data.ndim}, shape {shape}); expected a "
-                     f"1D spectrum; pass row= (spectral axis along NAXIS1) or column= (along "
-                     f"NAXIS2) to take one spectrum of a 2D image")
+                     f"1D spectrum (row=/column= work for 2D images only); extract one spectrum "
+                     f"first and pass it as arrays")
     flux = np.asarray(selector(data), dtype=float).reshape(-1)
     n = flux.size
     axis_q, kind, medium, extra = _image_axis(header, axis, n, ctx, opts)
