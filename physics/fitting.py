@@ -204,7 +204,12 @@ def _regions(exclude, unit, label):
     if exclude is None:
         return []
     subs = getattr(exclude, "subregions", None)
-    items = subs if subs is not None else list(exclude)
+    if subs is not None:
+        items = subs
+    elif isinstance(exclude, u.Quantity) and exclude.shape == (2,):
+        items = [exclude]
+    else:
+        items = list(exclude)
     out = []
     for item in items:
         lo, hi = item[0], item[1]
@@ -315,7 +320,7 @@ def fit_line(spectrum, center, window=None, continuum_order=1, profile="gaussian
         Observed position (initial guess) of the line, or of the first component of a blend.
     window : `~astropy.units.Quantity`, optional
         Either a pair ``[low, high]`` in any spectral unit, or a single full width (spectral unit
-        or km/s) centred on the line (blends: on the span of the components).  Default: 12 FWHM
+        or km/s) centred on the line (blends: on the span of the components).  Default: 16 FWHM
         guesses or 40 pixels, whichever is wider, around the line(s).
     continuum_order : int
         Polynomial order of the local continuum (0 = constant, 1 = linear, ...).

@@ -245,6 +245,13 @@ def test_exclude_region_ignores_spike():
     clean = fit_line(make_spectrum(X, y_bad, 0.1), 6563 * u.AA, window=[6530, 6600] * u.AA,
                      exclude=[(6579 * u.AA, 6583 * u.AA)])
     assert clean.flux.value == pytest.approx(50.0, rel=1e-5)
+    single = fit_line(make_spectrum(X, y_bad, 0.1), 6563 * u.AA, window=[6530, 6600] * u.AA,
+                      exclude=[6579, 6583] * u.AA)
+    region = fit_line(make_spectrum(X, y_bad, 0.1), 6563 * u.AA, window=[6530, 6600] * u.AA,
+                      exclude=SpectralRegion(6579 * u.AA, 6583 * u.AA))
+    assert single.flux.value == pytest.approx(50.0, rel=1e-5)
+    assert region.flux.value == pytest.approx(50.0, rel=1e-5)
+    assert single.n_pixels == region.n_pixels == clean.n_pixels < 141
     dirty = fit_line(make_spectrum(X, y_bad, 0.1), 6563 * u.AA, window=[6530, 6600] * u.AA)
     assert abs(dirty.flux.value - 50.0) > 1.0
 
