@@ -88,6 +88,8 @@ class _Ctx:
     def __init__(self, name):
         self.name = name
         self.hdu = None
+        self.hdu_index = None
+        self.hdu_name = None
         self.assumptions = []
         self.notes = []
 
@@ -181,7 +183,7 @@ def read_spectrum(source, hdu=None, medium=None, row=None, column=None, uncertai
         Ascending spectral axis (a descending file is reversed, recorded as
         ``meta["zline"]["reversed"]``); non-finite flux, non-finite or non-positive uncertainty,
         zero inverse variance and nonzero mask values are masked.  ``meta["zline"]`` holds
-        ``file, hdu, layout, medium, medium_assumed, uncertainty, assumptions, header`` and more;
+        ``file, hdu`` (index), ``hdu_name``, ``layout, medium, medium_assumed, uncertainty, assumptions, header`` and more;
         ``meta["header"]`` the FITS header of the HDU read.
 
     Raises
@@ -288,6 +290,12 @@ def _open_and_read(target, ctx, opts):
 # HDU selection
 
 
+def _choose(ctx, hdul, index):
+    ctx.hdu = _hdu_label(hdul, index)
+    ctx.hdu_index = int(index)
+    ctx.hdu_name = hdul[index].name or None
+
+
 def _hdu_label(hdul, index):
     name = hdul[index].name
     return f"{index} ({name})" if name else f"{index}"
@@ -328,13 +336,13 @@ def _select_hdu(hdul, ctx, want):
             index = names.index(want.upper())
         else:
             ctx.fail(f"hdu={want!r} is not accepted; expected an index (int) or an EXTNAME (str)")
-        ctx.hdu = _hdu_label(hdul, index)
+        _choose(ctx, hdul, index)
         ctx.notes.append(f"HDU {ctx.hdu} chosen by hdu={want!r}")
         return index
     aux = set(_ERR_EXTNAMES) | set(_MASK_EXTNAMES)
     tables = [i for i, h in enumerate(hdul) if _is_table(h) and len(h.columns) > 0]
     if _has_image(hdul[0]):
-        ctx.hdu = _hdu_label(hdul, 0)
+        _choose(ctx, hdul, 0)
         if tables:
             ctx.notes.append(f"primary image chosen over the table in HDU {_hdu_label(hdul, tables[0])}"
                              f"; pass hdu={tables[0]} to read the table")
@@ -343,12 +351,12 @@ def _select_hdu(hdul, ctx, want):
         return 0
     for i, h in enumerate(hdul):
         if _has_image(h) and h.name.upper() in _FLUX_EXTNAMES:
-            ctx.hdu = _hdu_label(hdul, i)
+            _choose(ctx, hdul, i)
             ctx.notes.append(f"image extension {ctx.hdu} chosen by its EXTNAME")
             return i
     for i, h in enumerate(hdul):
         if (_has_image(h) and h.name.upper() not in aux) or (_is_table(h) and i in tables):
-            ctx.hdu = _hdu_label(hdul, i)
+            _choose(ctx, hdul, i)
             ctx.notes.append(f"first spectrum-like HDU {ctx.hdu} chosen")
             return i
     ctx.fail(f"has no HDU with spectrum data (an image or a table); the HDUs are "
@@ -932,8 +940,9 @@ def _build(out, ctx, opts, header=None, facts=None):
             ctx.fail(f"flux_unit={target_funit} cannot be reached from the file's flux unit "
                      f"{funit}")
         if uncertainty is not None:
-            ratio = np.where(flux_q.value != 0, newf.value / np.where(flux_q.value != 0,
-                                                                        flux_q.value, 1), 0)
+            # the conversion is a per-pixel factor (flux density conversions are linear)
+            ratio = (np.ones(flux_q.shape) * funit).to_value(
+                target_funit, equivalencies=u.spectral_density(axis))
             if kind == "stdev":
                 uncertainty = StdDevUncertainty(uncertainty.array * np.abs(ratio), unit=target_funit)
             elif kind == "variance":
@@ -945,7 +954,7 @@ def _build(out, ctx, opts, header=None, facts=None):
                                                   unit=target_funit ** -2)
         flux_q = newf
 
-    zmeta = dict(file=ctx.name, hdu=ctx.hdu, layout=out["layout"], medium=medium,
+    zmeta = dict(file=ctx.name, hdu=ctx.hdu_index, hdu_name=ctx.hdu_name, layout=out["layout"], medium=medium,
                  medium_assumed=assumed, uncertainty=kind if uncertainty is not None else None,
                  assumptions=list(ctx.assumptions), notes=list(ctx.notes), reversed=reversed_,
                  header=dict(facts or {}))
@@ -997,7 +1006,7 @@ def _from_spectrum(spec, opts):
         medium, assumed = _decide_medium(kind, stated, opts["medium"], ctx)
     unc = spec.uncertainty
     ukind = next((k for k, cls in UNCERTAINTY_TYPES.items() if isinstance(unc, cls)), None)
-    zmeta = dict(file=old.get("file"), hdu=old.get("hdu"), layout=old.get("layout", "spectrum"),
+    zmeta = dict(file=old.get("file"), hdu=old.get("hdu"), hdu_name=old.get("hdu_name"), layout=old.get("layout", "spectrum"),
                  medium=medium, medium_assumed=assumed, uncertainty=ukind,
                  assumptions=list(old.get("assumptions", [])) + ctx.assumptions,
                  notes=list(old.get("notes", [])) + ctx.notes,
@@ -1078,7 +1087,7 @@ def describe_spectrum(spectrum):
     Returns
     -------
     dict
-        ``file, hdu, layout, n_pixels, spectral_min, spectral_max, spectral_unit, medium,
+        ``file, hdu`` (index), ``hdu_name`` (EXTNAME), ``layout, n_pixels, spectral_min, spectral_max, spectral_unit, medium,
         medium_assumed, flux_unit, uncertainty, n_masked, assumptions, notes, header`` and, when
         known, ``rest_value`` (with ``rest_unit``) and ``velocity_convention``.
     """
@@ -1093,7 +1102,7 @@ def describe_spectrum(spectrum):
     ukind = next((k for k, cls in UNCERTAINTY_TYPES.items() if isinstance(unc, cls)), None)
     mask = spectrum.mask
     info = dict(
-        file=z.get("file"), hdu=z.get("hdu"), layout=z.get("layout", "spectrum"),
+        file=z.get("file"), hdu=z.get("hdu"), hdu_name=z.get("hdu_name"), layout=z.get("layout", "spectrum"),
         n_pixels=int(axis.size), spectral_min=float(np.min(axis.value)),
         spectral_max=float(np.max(axis.value)), spectral_unit=axis.unit.to_string(),
         medium=z.get("medium"), medium_assumed=bool(z.get("medium_assumed", False)),

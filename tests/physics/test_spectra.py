@@ -63,7 +63,7 @@ def test_linear_wave_with_cunit_matches_astropy_wcs(tmp_path):
     assert spec.flux.unit == u.Unit("1e-17 erg/(s cm2 Angstrom)")
     z = spec.meta["zline"]
     assert z["medium"] == "vacuum" and z["medium_assumed"] is False
-    assert z["layout"] == "image-linear" and z["hdu"].startswith("0")
+    assert z["layout"] == "image-linear" and z["hdu"] == 0 and z["hdu_name"] == "PRIMARY"
     for key in ("OBJECT", "DATE-OBS", "SPECSYS", "EXPTIME", "TELESCOP", "RA", "DEC", "OBSGEO-X",
                 "OBSGEO-Y", "OBSGEO-Z", "BUNIT"):
         assert z["header"][key] == hdr[key]
@@ -165,7 +165,7 @@ def test_flux_err_mask_extensions(tmp_path, name, cls, kind):
     assert spec.meta["zline"]["uncertainty"] == kind
     np.testing.assert_allclose(spec.uncertainty.array, err, rtol=1e-6)
     assert spec.mask[5] and spec.mask[7] and spec.mask.sum() == 2
-    assert spec.meta["zline"]["hdu"].startswith("1")
+    assert spec.meta["zline"]["hdu"] == 1 and spec.meta["zline"]["hdu_name"] == "FLUX"
     assert describe_spectrum(spec)["n_masked"] == 2
     assert read_spectrum(path, hdu="flux").spectral_axis.size == N
 
@@ -399,3 +399,69 @@ def test_truncated_file_rephrased(tmp_path):
     path.write_bytes(buf.getvalue()[:4000])
     with pytest.raises(SpectrumFormatError, match=r"cut\.fits"):
         read_spectrum(path)
+
+
+# ---------------------------------------------------------------- options and conventions
+
+
+@pytest.mark.parametrize("ctype,velref,convention", [
+    ("VELO-LSR", None, "optical"),      # AIPS convention: optical unless VELREF flags radio
+    ("VELO-LSR", 257, "radio"),         # VELREF = 1 + 256: LSR, radio
+    ("FELO-HEL", None, "optical"),
+    ("VELO", None, "relativistic"),     # bare VELO: apparent radial velocity (FITS WCS Paper III)
+])
+def test_velo_conventions(tmp_path, ctype, velref, convention):
+    rest = 1.420405751e9
+    hdr = {"CTYPE1": ctype, "CUNIT1": "m/s", "CRVAL1": 1.0e5, "CDELT1": -1.0e3, "CRPIX1": 1.0,
+           "RESTFRQ": rest}
+    if velref is not None:
+        hdr["VELREF"] = velref
+    spec = read_spectrum(_write(tmp_path / "velo.fits", _image(hdr)))
+    v = (1.0e5 - 1.0e3 * np.arange(N)) * u.m / u.s
+    equiv = {"radio": u.doppler_radio, "optical": u.doppler_optical,
+             "relativistic": u.doppler_relativistic}[convention](rest * u.Hz)
+    assert_quantity_allclose(spec.spectral_axis, v.to(u.Hz, equivalencies=equiv), rtol=1e-13)
+    assert spec.meta["zline"]["velocity_convention"] == convention
+
+
+def test_unit_options_convert_stated_units(tmp_path):
+    h = _image({"CTYPE1": "WAVE", "CUNIT1": "Angstrom", "CRVAL1": 5000.0, "CDELT1": 1.0,
+                "CRPIX1": 1.0, "BUNIT": "erg/(s cm2 Angstrom)"})
+    err = fits.ImageHDU(np.full(N, 0.5, "f4"), name="ERR")
+    path = _write(tmp_path / "conv.fits", h, err)
+    wave = (5000.0 + np.arange(N)) * u.AA
+    spec = read_spectrum(path, spectral_unit="nm")
+    assert_quantity_allclose(spec.spectral_axis, wave.to(u.nm))
+    spec = read_spectrum(path, spectral_unit="Hz")  # reversed to stay ascending
+    assert_quantity_allclose(spec.spectral_axis, np.sort(wave.to(u.Hz, equivalencies=u.spectral())))
+    spec = read_spectrum(path, flux_unit="Jy")
+    flam = h.data.astype(float) * u.Unit("erg/(s cm2 Angstrom)")
+    assert_quantity_allclose(spec.flux, flam.to(u.Jy, equivalencies=u.spectral_density(wave)))
+    ratio = spec.flux.value / h.data.astype(float)
+    np.testing.assert_allclose(spec.uncertainty.array, 0.5 * ratio, rtol=1e-6)
+    assert spec.uncertainty.unit == u.Jy
+
+
+def test_uncertainty_type_override(tmp_path):
+    h = _image({"CTYPE1": "WAVE", "CUNIT1": "Angstrom", "CRVAL1": 5000.0, "CDELT1": 1.0,
+                "CRPIX1": 1.0})
+    path = _write(tmp_path / "ut.fits", h, fits.ImageHDU(np.full(N, 4.0, "f4"), name="UNCERT"))
+    assert isinstance(read_spectrum(path).uncertainty, StdDevUncertainty)
+    spec = read_spectrum(path, uncertainty_type="variance")
+    assert isinstance(spec.uncertainty, VarianceUncertainty)
+    assert spec.meta["zline"]["uncertainty"] == "variance"
+
+
+def test_table_medium_keyword_and_multirow_array_table(tmp_path):
+    wave = np.linspace(4000, 5000, N)
+    tab = _table([("WAVE", "D", "Angstrom", wave), ("FLUX", "E", "Jy", _flux())])
+    tab.header["AIRORVAC"] = "air"
+    spec = read_spectrum(_write(tmp_path / "airtab.fits", fits.PrimaryHDU(), tab))
+    assert spec.meta["zline"]["medium"] == "air" and not spec.meta["zline"]["medium_assumed"]
+    cols = fits.ColDefs([fits.Column("WAVE", f"{N}D", unit="Angstrom",
+                                     array=np.stack([wave, wave + 1000])),
+                         fits.Column("FLUX", f"{N}E", unit="Jy", array=np.ones((2, N)))])
+    path = _write(tmp_path / "tworow.fits", fits.PrimaryHDU(), fits.BinTableHDU.from_columns(cols))
+    with pytest.raises(SpectrumFormatError, match=r"tworow\.fits.*2 rows.*row="):
+        read_spectrum(path)
+    assert_quantity_allclose(read_spectrum(path, row=1).spectral_axis, (wave + 1000) * u.AA)

@@ -31,7 +31,7 @@ def add_arguments(parser):
 def format_text(info):
     """Render a :func:`~zline.physics.spectra.describe_spectrum` dict as readable lines."""
     lines = []
-    order = ["file", "hdu", "layout", "n_pixels", "spectral_min", "spectral_max", "spectral_unit",
+    order = ["file", "hdu", "hdu_name", "layout", "n_pixels", "spectral_min", "spectral_max", "spectral_unit",
              "medium", "medium_assumed", "flux_unit", "uncertainty", "n_masked", "reversed",
              "rest_value", "rest_unit", "velocity_convention"]
     width = max(len(k) for k in order)
