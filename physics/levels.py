@@ -33,6 +33,7 @@ from dataclasses import dataclass
 
 import astropy.units as u
 import numpy as np
+from scipy.special import digamma as _digamma
 
 from zline.physics import constants as _k
 from zline.physics.species import Species, get_species
@@ -165,6 +166,11 @@ def _warn_rydberg(sp, n):
         )
 
 
+def _harmonic(n):
+    """Harmonic number 1 + 1/2 + ... + 1/n, vectorised (digamma(n + 1) + Euler's gamma)."""
+    return _digamma(n + 1.0) + np.euler_gamma
+
+
 def _bethe_log(n, l):
     """ln k0(n, l): table for n <= 8; the n = 8 row beyond, with an l^-4 tail for l > 7 (tiny)."""
     ni = np.minimum(n, 8).astype(int)
@@ -206,7 +212,7 @@ def _self_energy_F(Z, n, l, j, mu):
     s = l == 0
     p = l == 1
     kappa = np.where(j > l, -(l + 1.0), l)
-    harmonic = np.array([sum(1.0 / i for i in range(1, int(m) + 1)) for m in np.ravel(n)]).reshape(n.shape)
+    harmonic = _harmonic(n)
     A41 = np.where(s, 4.0 / 3.0, 0.0)
     A40 = -4.0 / 3.0 * _bethe_log(n, l) + np.where(s, 10.0 / 9.0, 0.0)
     A40_mag = np.where(s, 0.0, -1.0 / (2.0 * np.where(s, 1.0, kappa * (2.0 * l + 1.0))))
@@ -278,11 +284,11 @@ def _qed_correction(sp, n, l, j):
     e_2l = (_ALPHA / math.pi) * scale * B
     # Salpeter recoil (CODATA 2006 eq. 29)
     r = (1.0 - mu) / mu  # m_e / m_N
-    harmonic = np.array([sum(1.0 / i for i in range(1, int(m) + 1)) for m in np.ravel(n)]).reshape(n.shape)
+    harmonic = _harmonic(n)
     lm = np.maximum(l, 1.0)
     a_n = np.where(s, -2.0 * (np.log(2.0 / n) + harmonic + 1.0 - 1.0 / (2.0 * n)), 1.0 / (lm * (lm + 1) * (2 * lm + 1)))
     last = 2.0 / (1.0 - r * r) * (math.log(1.0 / mu) - (mu * r) ** 2 * math.log(1.0 / (mu * r)))
-    bracket = (np.where(s, 2.0 / 3.0 * L - 1.0 / 9.0 - last, 0.0) - 8.0 / 3.0 * _bethe_log(n, l) - 7.0 / 3.0 * a_n)
+    bracket = (np.where(s, L / 3.0 - 1.0 / 9.0 - last, 0.0) - 8.0 / 3.0 * _bethe_log(n, l) - 7.0 / 3.0 * a_n)
     e_rec = mu**3 * r * za**5 / (math.pi * n**3) * bracket
     # finite nuclear size, s states (CODATA 2006 eq. 59, leading term)
     if sp.rydberg:
