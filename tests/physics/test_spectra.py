@@ -465,3 +465,18 @@ def test_table_medium_keyword_and_multirow_array_table(tmp_path):
     with pytest.raises(SpectrumFormatError, match=r"tworow\.fits.*2 rows.*row="):
         read_spectrum(path)
     assert_quantity_allclose(read_spectrum(path, row=1).spectral_axis, (wave + 1000) * u.AA)
+
+
+@pytest.mark.parametrize("hdr,unit", [
+    ({"CTYPE1": "WAVE-F2W", "CUNIT1": "Angstrom", "CRVAL1": 5000.0, "CDELT1": 1.0,
+      "CRPIX1": 1.0}, u.AA),
+    ({"CTYPE1": "FREQ-W2F", "CUNIT1": "GHz", "CRVAL1": 100.0, "CDELT1": 0.01, "CRPIX1": 5.0},
+     u.GHz),
+])
+def test_non_linear_paper_iii_algorithms_follow_astropy_wcs(tmp_path, hdr, unit):
+    h = _image(hdr)
+    spec = read_spectrum(_write(tmp_path / "nonlin.fits", h))
+    expected = np.sort(_wcs_world(h.header, N, unit))
+    assert_quantity_allclose(spec.spectral_axis, expected, rtol=1e-12)
+    steps = np.diff(spec.spectral_axis.value)
+    assert not np.allclose(steps, steps[0], rtol=1e-9, atol=0)  # really non-linear
