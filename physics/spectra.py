@@ -799,6 +799,12 @@ def _read_table(hdul, index, ctx, opts):
         ctx.notes.append(f"mask from column {mask_col.name!r}")
 
     text = unit_of(axis_col)
+    if axis_kind == "log10-length":  # 'log(Angstrom)', 'log10(Angstrom)' name the inner unit
+        low = text.lower()
+        for head in ("log10(", "log(", "dex("):
+            if low.startswith(head) and low.endswith(")"):
+                text = text[len(head):-1]
+                break
     unit = _parse_unit(text) if text else None
     if text and unit is None and opts["spectral_unit"] is None:
         ctx.fail(f"column {axis_col.name!r} has TUNIT {text!r}, which astropy cannot read; "
@@ -813,9 +819,8 @@ def _read_table(hdul, index, ctx, opts):
             ctx.assume(f"column {axis_col.name!r} has no unit: read as {unit}")
     layout = "table"
     if axis_kind == "log10-length":
-        if unit is not u.AA and unit.physical_type not in ("dimensionless",):
-            # TUNIT names the wavelength unit the log refers to, e.g. 'log(Angstrom)'
-            pass
+        # TUNIT may name the wavelength unit the log refers to: 'Angstrom' or 'log(Angstrom)'
+        unit = getattr(unit, "physical_unit", unit)
         if unit.is_equivalent(u.dimensionless_unscaled):
             unit = u.AA
             ctx.assume(f"column {axis_col.name!r} is log10 of a wavelength in Angstrom")

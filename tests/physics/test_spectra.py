@@ -480,3 +480,11 @@ def test_non_linear_paper_iii_algorithms_follow_astropy_wcs(tmp_path, hdr, unit)
     assert_quantity_allclose(spec.spectral_axis, expected, rtol=1e-12)
     steps = np.diff(spec.spectral_axis.value)
     assert not np.allclose(steps, steps[0], rtol=1e-9, atol=0)  # really non-linear
+
+
+@pytest.mark.parametrize("tunit", [None, "Angstrom", "log(Angstrom)", "dex(Angstrom)"])
+def test_loglam_unit_spellings(tmp_path, tunit):
+    loglam = 3.6 + 1e-4 * np.arange(N)
+    tab = _table([("LOGLAM", "D", tunit, loglam), ("FLUX", "E", None, _flux())])
+    spec = read_spectrum(_write(tmp_path / "ll.fits", fits.PrimaryHDU(), tab))
+    assert_quantity_allclose(spec.spectral_axis, 10 ** loglam * u.AA, rtol=1e-12)
