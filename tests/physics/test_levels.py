@@ -9,6 +9,8 @@ import astropy.constants as const
 import astropy.units as u
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from astropy.tests.helper import assert_quantity_allclose
 
 from zline.physics import constants
@@ -267,3 +269,30 @@ def test_bohr_orbit():
     c6 = bohr_orbit("C VI", 1)
     assert_quantity_allclose(c6.r, const.a0 / 6 / get_species("C VI").mass_ratio, rtol=1e-12)
     assert math.isclose(c6.v.to_value(u.km / u.s), 6 * orbit.v[0].to_value(u.km / u.s), rel_tol=1e-12)
+
+
+_IONS = [f"{s} {r}" for s, r in (("H", "I"), ("He", "II"), ("C", "VI"), ("O", "VIII"), ("Si", "XIV"),
+                                 ("Ca", "XX"), ("Fe", "XXVI"), ("Zn", "XXX"))]
+
+
+@settings(max_examples=60, deadline=None)
+@given(name=st.sampled_from(_IONS), n=st.integers(1, 80), data=st.data())
+def test_model_ordering_properties(name, n, data):
+    l = data.draw(st.integers(0, n - 1))
+    j = l + 0.5
+    t = {m: term_value_invcm(name, n, l, j, m) for m in MODELS}
+    # a finite nucleus mass weakens binding; relativity strengthens it (Dirac, common practice)
+    assert t["bohr"] > t["reduced-mass"]
+    assert t["dirac"] > t["reduced-mass"]
+    # fine-structure partner j = l - 1/2 is more bound (Dirac); QED lifts s levels (self energy dominates)
+    if l > 0:
+        assert term_value_invcm(name, n, l, l - 0.5, "dirac") > t["dirac"]
+    if l == 0:
+        assert t["qed"] < t["dirac"]
+    # QED stays a small correction: (2 alpha / pi)(Z alpha)^2 F / n of the term value, F <= 10.4 (1s at Z=1)
+    z = get_species(name).charge
+    bound = 2 / math.pi * 10.4 * constants.alpha * (z * constants.alpha) ** 2 / n
+    assert abs(t["qed"] - t["dirac"]) < bound * t["dirac"]
+    # and the next level up is less bound
+    if n < 80:
+        assert term_value_invcm(name, n + 1, l, j) < t["qed"]
