@@ -64,7 +64,7 @@ class DecimationPyramid:
             raise ValueError("Argument 'x' must be finite everywhere; it holds NaN or inf.")
         if x.size > 1 and x[0] > x[-1]:
             x, y = x[::-1], y[::-1]
-        if x.size > 1 and np.any(np.diff(x) < 0):
+        if x.size > 1 and bool((x[1:] < x[:-1]).any()):
             raise ValueError("Argument 'x' must be monotonic (increasing or decreasing).")
         self._x = np.ascontiguousarray(x)
         self._y = np.ascontiguousarray(y)
@@ -78,42 +78,57 @@ class DecimationPyramid:
         n = y.size
         itype = np.int32 if n < 2**31 - 1 else np.int64
         self._itype = itype
-        # level 0 is the data itself; levels 1.. hold argmin, argmax, first-NaN index (or -1)
+        # level 0 is the data itself; levels 1.. hold argmin, argmax, first-NaN index (or -1);
+        # the bin extrema are carried along as values so no level gathers from ``y``
         self._amin = [None]
         self._amax = [None]
         self._anan = [None]
-        amin = amax = np.arange(n, dtype=itype)
-        anan = np.where(np.isnan(y), amin, -1).astype(itype) if self._has_nan else None
-        while amin.size > 1:
-            m = amin.size
-            pad = (-m) % f
-            rows = (m + pad) // f
-            vmin = y[amin]
-            vmax = y[amax]
-            vmin = np.where(np.isnan(vmin), np.inf, vmin)
-            vmax = np.where(np.isnan(vmax), -np.inf, vmax)
+        big = np.iinfo(itype).max
+        vmin = vmax = y
+        nan = anan = None
+        if self._has_nan:
+            nan = np.isnan(y)
+            vmin, vmax = y.copy(), y.copy()
+            vmin[nan], vmax[nan] = np.inf, -np.inf
+        amin = amax = None  # level 0: the index is the position
+        size = n
+        while size > 1:
+            pad = (-size) % f
+            rows = (size + pad) // f
             if pad:
                 vmin = np.concatenate([vmin, np.full(pad, np.inf)])
                 vmax = np.concatenate([vmax, np.full(pad, -np.inf)])
-                amin_p = np.concatenate([amin, np.full(pad, amin[-1], dtype=itype)])
-                amax_p = np.concatenate([amax, np.full(pad, amax[-1], dtype=itype)])
+            vmin2, vmax2 = vmin.reshape(rows, f), vmax.reshape(rows, f)
+            jmin = np.argmin(vmin2, axis=1)
+            jmax = np.argmax(vmax2, axis=1)
+            flat_min = np.arange(0, rows * f, f) + jmin
+            flat_max = np.arange(0, rows * f, f) + jmax
+            vmin, vmax = vmin[flat_min], vmax[flat_max]
+            if amin is None:
+                # padded positions point past the end; clip them (their values are +-inf)
+                amin = np.minimum(flat_min, n - 1).astype(itype)
+                amax = np.minimum(flat_max, n - 1).astype(itype)
             else:
-                amin_p, amax_p = amin, amax
-            r = np.arange(rows)
-            jmin = np.argmin(vmin.reshape(rows, f), axis=1)
-            jmax = np.argmax(vmax.reshape(rows, f), axis=1)
-            amin = amin_p.reshape(rows, f)[r, jmin]
-            amax = amax_p.reshape(rows, f)[r, jmax]
-            if anan is not None:
-                big = np.iinfo(itype).max
-                a = np.where(anan < 0, big, anan)
                 if pad:
-                    a = np.concatenate([a, np.full(pad, big, dtype=itype)])
-                a = a.reshape(rows, f).min(axis=1)
-                anan = np.where(a == big, -1, a).astype(itype)
+                    amin = np.concatenate([amin, np.full(pad, amin[-1], dtype=itype)])
+                    amax = np.concatenate([amax, np.full(pad, amax[-1], dtype=itype)])
+                amin, amax = amin[flat_min], amax[flat_max]
+            if nan is not None and anan is None:  # level 1 from the boolean NaN mask
+                nan2 = np.concatenate([nan, np.zeros(pad, bool)]).reshape(rows, f) if pad \
+                    else nan.reshape(rows, f)
+                first = np.arange(0, rows * f, f) + np.argmax(nan2, axis=1)
+                anan = np.where(nan2.any(axis=1), first, big).astype(itype)
+                self._anan.append(np.where(anan == big, -1, anan).astype(itype))
+            elif anan is not None:
+                if pad:
+                    anan = np.concatenate([anan, np.full(pad, big, dtype=itype)])
+                anan = anan.reshape(rows, f).min(axis=1)
+                self._anan.append(np.where(anan == big, -1, anan).astype(itype))
+            else:
+                self._anan.append(None)
             self._amin.append(amin)
             self._amax.append(amax)
-            self._anan.append(anan)
+            size = rows
         self.levels = len(self._amin)
 
     # ------------------------------------------------------------------ helpers
