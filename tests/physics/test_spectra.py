@@ -488,3 +488,29 @@ def test_loglam_unit_spellings(tmp_path, tunit):
     tab = _table([("LOGLAM", "D", tunit, loglam), ("FLUX", "E", None, _flux())])
     spec = read_spectrum(_write(tmp_path / "ll.fits", fits.PrimaryHDU(), tab))
     assert_quantity_allclose(spec.spectral_axis, 10 ** loglam * u.AA, rtol=1e-12)
+
+
+@pytest.mark.parametrize("fmt", ["wcs1d-fits", "tabular-fits"])
+def test_reads_files_written_by_specutils(tmp_path, fmt):
+    wave = (5000.0 + 0.5 * np.arange(N)) * u.AA
+    mask = np.zeros(N, bool)
+    mask[10] = True
+    axis = {"spectral_axis": wave}
+    if fmt == "wcs1d-fits":  # that writer needs a FITS WCS, not a lookup table
+        w = WCS(naxis=1)
+        w.wcs.ctype, w.wcs.cunit = ["WAVE"], ["Angstrom"]
+        w.wcs.crval, w.wcs.cdelt, w.wcs.crpix = [5000.0], [0.5], [1.0]
+        axis = {"wcs": w}
+    spec = Spectrum(flux=_flux() * u.Unit("erg/(s cm2 Angstrom)"), **axis,
+                    uncertainty=StdDevUncertainty(np.full(N, 0.1)), mask=mask)
+    path = tmp_path / f"specutils_{fmt}.fits"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        spec.write(path, format=fmt)
+    back = read_spectrum(path)
+    assert_quantity_allclose(back.spectral_axis.to(u.AA), wave, rtol=1e-9)
+    assert_quantity_allclose(back.flux, spec.flux, rtol=1e-6)
+    assert back.uncertainty is not None
+    np.testing.assert_allclose(back.uncertainty.represent_as(StdDevUncertainty).array, 0.1,
+                               rtol=1e-6)
+    assert back.mask[10] and back.mask.sum() == 1
