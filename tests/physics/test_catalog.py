@@ -90,6 +90,9 @@ def test_nebular_set_contents():
     # He II 3-4 at 4687.02 A vacuum (public line list quoting NIST, as quoted)
     assert_quantity_allclose(he2["rest"][0], 4687.02 * u.AA, atol=0.05 * u.AA)
     assert np.all(np.diff(t["rest"].to_value(u.AA)) >= 0)
+    air = line_set("nebular", medium="air")
+    # He II 4-7 at 5411.52 A air (as quoted in public line lists)
+    assert_quantity_allclose(_row(air, "He II 5412")["rest"], 5411.52 * u.AA, atol=0.03 * u.AA)
 
 
 def test_radio_set_frequencies_and_offsets():
@@ -99,6 +102,8 @@ def test_radio_set_frequencies_and_offsets():
     assert_quantity_allclose(_row(t, "H110α")["rest"], 4874.157 * u.MHz, rtol=1e-6)
     # H91α 8584.823 MHz, same source
     assert_quantity_allclose(_row(t, "H91α")["rest"], 8584.823 * u.MHz, rtol=1e-6)
+    # H76α 14689.99 MHz (spectral-line catalogue values quoted in public observing scripts)
+    assert_quantity_allclose(_row(t, "H76α")["rest"], 14689.99 * u.MHz, rtol=1e-6)
     h = _row(t, "H109α")["rest"]
     for label, dv in (("He109α", -122.2), ("C109α", -149.6)):  # common practice
         v = (_row(t, label)["rest"]).to(u.km / u.s, equivalencies=u.doppler_radio(h))
@@ -112,8 +117,14 @@ def test_xray_set_lyman_alpha_doublet():
     a1 = _row(t, "S XVI Lyα1")["rest"].to(u.AA, equivalencies=u.spectral())
     a2 = _row(t, "S XVI Lyα2")["rest"].to(u.AA, equivalencies=u.spectral())
     # public X-ray line lists consistent with NIST ASD (as quoted, check-values.md)
-    assert_quantity_allclose(a1, 4.72735 * u.AA, atol=5e-4 * u.AA)
-    assert_quantity_allclose(a2, 4.73276 * u.AA, atol=5e-4 * u.AA)
+    assert_quantity_allclose(a1, 4.72735 * u.AA, atol=5e-5 * u.AA)
+    assert_quantity_allclose(a2, 4.73276 * u.AA, atol=5e-5 * u.AA)
+    wav = line_set("xray", unit=u.AA)
+    # same source: N VII, Ne X, Mg XII Lyα1 / Lyα2 (as quoted, check-values.md)
+    for label, value in (("N VII Lyα1", 24.7792), ("N VII Lyα2", 24.7846),
+                         ("Ne X Lyα1", 12.1321), ("Ne X Lyα2", 12.1375),
+                         ("Mg XII Lyα1", 8.41920), ("Mg XII Lyα2", 8.42461)):
+        assert_quantity_allclose(_row(wav, label)["rest"], value * u.AA, atol=5e-5 * u.AA)
     assert "Fe XXVI Lyβ" in t["label"] and "Ni XXVIII Lyα1" in t["label"]
 
 
