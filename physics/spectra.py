@@ -10,6 +10,7 @@ Every failure is a :class:`SpectrumFormatError` (a ``ValueError``) whose message
 the HDU, the keyword or column, what was expected, what was found and what to try.
 """
 
+import copy
 import io
 import math
 import os
@@ -268,7 +269,7 @@ def _guard(ctx, fn):
         text = str(exc).splitlines()[0] if str(exc) else ""
         ctx.fail(f"could not be read as FITS ({type(exc).__name__}: {text}); expected a complete "
                  f"FITS file with a 1D spectrum; check the file is not truncated or corrupt "
-                 f"(try `python -m astropy.io.fits.scripts.fitsinfo` on it)")
+                 f"(astropy's `fitsinfo FILE` lists what it can read)")
     messages = sorted({str(w.message).splitlines()[0] for w in caught})
     if messages:
         spec.meta["zline"]["warnings"] = messages
@@ -1018,8 +1019,9 @@ def _from_spectrum(spec, opts):
                  reversed=old.get("reversed", False), header=dict(old.get("header", {})))
     meta = dict(spec.meta)
     meta["zline"] = zmeta
-    spec.meta = meta
-    return spec
+    out = copy.copy(spec)  # the caller's spectrum keeps its own meta
+    out.meta = meta
+    return out
 
 
 def spectrum_from_arrays(spectral_axis, flux, uncertainty=None, mask=None, medium=None,

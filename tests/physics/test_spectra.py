@@ -364,6 +364,8 @@ def test_spectrum_passthrough_and_arrays():
     spec = Spectrum(flux=_flux() * u.Jy, spectral_axis=wave)
     out = read_spectrum(spec, medium="air")
     assert out.meta["zline"]["medium"] == "air" and out.meta["zline"]["medium_assumed"] is False
+    assert "zline" not in spec.meta  # the input is not changed
+    assert_quantity_allclose(out.spectral_axis, wave)
     arr = read_spectrum((wave, _flux() * u.Jy, np.full(N, 0.1) * u.Jy))
     assert isinstance(arr.uncertainty, StdDevUncertainty)
     assert arr.meta["zline"]["medium_assumed"] is True
