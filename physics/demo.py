@@ -12,8 +12,8 @@ galaxy.fits    1-D primary image, linear ``WAVE`` WCS (vacuum Angstrom, 3600-980
                extension (1 sigma); star-forming galaxy at ``ZTRUE = 0.0734``
 nebula.fits    1-D primary image, ``AWAV-LOG`` WCS (air Angstrom, log-sampled, 3500-7500), ``VAR``
                image extension; ionised nebula at ``VTRUE = +23.4 km/s`` (optical convention)
-radio.fits     1-D primary image, ``FREQ`` WCS (Hz, 4.80-5.05 GHz), ``RESTFRQ``, ``SPECSYS =
-               'LSRK'``; H, He and C recombination lines at ``VTRUE = -12.6 km/s`` (radio convention)
+radio.fits     1-D primary image, ``FREQ`` WCS (Hz, 4.80-5.05 GHz), ``RESTFRQ``, ``SPECSYS``
+               LSRK; H, He and C recombination lines at ``VTRUE = -12.6 km/s`` (radio convention)
 xray.fits      binary table ``SPECTRUM`` with ``ENERGY`` [keV], ``FLUX``, ``ERROR``; hot plasma with
                Lyman alpha doublets of hydrogen-like ions at ``ZTRUE = 0.0179``
 =============  ====================================================================================
