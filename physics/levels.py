@@ -205,14 +205,16 @@ def _dirac_invcm(Z, mu, n, l, j):
     return -energy * _MEC2
 
 
-def _self_energy_F(Z, n, l, j, mu):
-    """Scaled one-loop self energy F(Z alpha) with mass factors, times (m_r/m_e)^3 (returned separately)."""
-    za = Z * _ALPHA
-    L = math.log(za**-2)
+def _se_coefficients(n, l, j):
+    """One-loop self-energy coefficients A41, A40 (non-magnetic), A40 magnetic, A50, A61, A62.
+
+    Mohr, Taylor & Newell 2008 (RMP 80, 633) eqs. 32-37: A41 = 4/3 d_l0;
+    A40 = -4/3 ln k0(n,l) + 10/9 d_l0 - 1/(2 kappa (2l+1)) (1 - d_l0);
+    A50 = (139/32 - 2 ln 2) pi d_l0; A62 = -d_l0; A61 as eq. 36.
+    """
     s = l == 0
     p = l == 1
     kappa = np.where(j > l, -(l + 1.0), l)
-    harmonic = _harmonic(n)
     A41 = np.where(s, 4.0 / 3.0, 0.0)
     A40 = -4.0 / 3.0 * _bethe_log(n, l) + np.where(s, 10.0 / 9.0, 0.0)
     A40_mag = np.where(s, 0.0, -1.0 / (2.0 * np.where(s, 1.0, kappa * (2.0 * l + 1.0))))
@@ -220,7 +222,7 @@ def _self_energy_F(Z, n, l, j, mu):
     A62 = np.where(s, -1.0, 0.0)
     A61 = np.where(
         s,
-        4.0 * harmonic + 28.0 / 3.0 * math.log(2.0) - 4.0 * np.log(n) - 601.0 / 180.0 - 77.0 / (45.0 * n**2),
+        4.0 * _harmonic(n) + 28.0 / 3.0 * math.log(2.0) - 4.0 * np.log(n) - 601.0 / 180.0 - 77.0 / (45.0 * n**2),
         0.0,
     ) + np.where(p, (1.0 - 1.0 / n**2) * (2.0 / 15.0 + np.where(j == 0.5, 1.0 / 3.0, 0.0)), 0.0)
     lm = np.maximum(l, 1.0)
@@ -230,32 +232,54 @@ def _self_energy_F(Z, n, l, j, mu):
         / (3.0 * n**2 * (2 * lm - 1) * (2 * lm) * (2 * lm + 1) * (2 * lm + 2) * (2 * lm + 3)),
         0.0,
     )
-    # Remainder G_SE: low-Z values, and for Z >= 10 the difference between the tabulated
-    # non-perturbative F and the expansion, interpolated linearly in Z between the knots.
+    return A41, A40, A40_mag, A50, A61, A62
+
+
+def _expansion_without_remainder(n, l, j, za):
+    """F(Z alpha) of the Z alpha expansion without the remainder G (infinite nuclear mass)."""
+    A41, A40, A40_mag, A50, A61, A62 = _se_coefficients(n, l, j)
+    L = math.log(za**-2)
+    return A41 * L + A40 + A40_mag + A50 * za + A62 * za * za * L * L + A61 * za * za * L
+
+
+def _remainder_G(Z, n, l, j):
+    """Self-energy remainder G_SE(Z alpha).
+
+    Low-Z values (table above) and, for the tabulated states 1s, 2p1/2, 2p3/2, the difference between
+    the non-perturbative F at Z = 10, 20, 30 and the expansion, divided by (Z alpha)^2 and interpolated
+    linearly in Z from the Z = 1 value. Untabulated states of the same (l, j) family (2s, 3s, ... after
+    1s; np1/2, np3/2 after 2p) take the same change of G with Z from their own low-Z value, an
+    approximation justified by their nearly equal low-Z remainders; d and higher states keep G = 0
+    (their F is below 0.05).
+    """
+    s = l == 0
+    p = l == 1
     default = np.where(s, -30.9, np.where(p & (j == 0.5), -1.15, np.where(p, -0.62, 0.0)))
     G = _lookup(_G_SE_LOW, n, l, j, default)
+    if Z <= 1:
+        return G
+    for key, values in _F_HIGH.items():
+        family = (l == key[1]) & (j == key[2])
+        if not np.any(family):
+            continue
+        kn, kl, kj = (np.array(float(v)) for v in key)
+        knots = [float((values[i] - _expansion_without_remainder(kn, kl, kj, zk * _ALPHA)) / (zk * _ALPHA) ** 2)
+                 for i, zk in enumerate(_F_HIGH_Z)]
+        g_here = float(np.interp(Z, np.concatenate(([1.0], _F_HIGH_Z)), [_G_SE_LOW[key], *knots]))
+        G = np.where(family & (n == key[0]), g_here, np.where(family, G + (g_here - _G_SE_LOW[key]), G))
+    return G
 
-    def expansion_without_G(zeta):
-        zz = zeta * _ALPHA
-        LL = math.log(zz**-2)
-        return A41 * LL + A40 + A40_mag + A50 * zz + A62 * zz * zz * LL * LL + A61 * zz * zz * LL
 
-    if Z > 1:
-        for key, values in _F_HIGH.items():
-            here = (n == key[0]) & (l == key[1]) & (j == key[2])
-            if not np.any(here):
-                continue
-            knots_g = [(values[i] - expansion_without_G(zk)) / (zk * _ALPHA) ** 2 for i, zk in enumerate(_F_HIGH_Z)]
-            knots_g = [np.where(here, kg, 0.0) for kg in knots_g]
-            g1 = _G_SE_LOW[key]
-            if Z <= 10:
-                g_here = g1 + (knots_g[0] - g1) * (Z - 1.0) / 9.0
-            elif Z <= 20:
-                g_here = knots_g[0] + (knots_g[1] - knots_g[0]) * (Z - 10.0) / 10.0
-            else:
-                g_here = knots_g[1] + (knots_g[2] - knots_g[1]) * (Z - 20.0) / 10.0
-            G = np.where(here, g_here, G)
-    # mass dependence (CODATA): logs take (m_e/m_r)(Z alpha)^-2, the magnetic term (m_r/m_e)^2
+def _self_energy_F(Z, n, l, j, mu):
+    """Scaled one-loop self energy F(Z alpha) including the CODATA mass factors.
+
+    All terms carry (m_r/m_e)^3 and logs take (m_e/m_r)(Z alpha)^-2, except the magnetic-moment part
+    of A40, which carries (m_r/m_e)^2 (Mohr, Taylor & Newell 2008, eq. 38).
+    """
+    za = Z * _ALPHA
+    L = math.log(za**-2)
+    A41, A40, A40_mag, A50, A61, A62 = _se_coefficients(n, l, j)
+    G = _remainder_G(Z, n, l, j)
     F3 = A41 * (L - math.log(mu)) + A40 + A50 * za + A62 * za * za * L * L + A61 * za * za * L + G * za * za
     return F3 * mu**3 + A40_mag * mu**2
 
