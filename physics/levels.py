@@ -83,14 +83,18 @@ _BETHE[8, :8] = [2.730267260, -0.046740486, -0.008785238, -0.002859541, -0.00119
 # 2006, Table VIII; from memory). States not listed use the n = 2 value of their (l, j) family;
 # these terms are (Z alpha)^2 smaller than the leading ones.
 _G_SE_LOW = {(1, 0, 0.5): -30.290240, (2, 0, 0.5): -31.185150, (2, 1, 0.5): -0.97350,
-             (2, 1, 1.5): -0.48650, (3, 0, 0.5): -31.04770, (4, 0, 0.5): -30.9616}
+             (2, 1, 1.5): -0.48650, (3, 0, 0.5): -31.04770, (4, 0, 0.5): -30.9616,
+             (3, 2, 1.5): 0.0, (3, 2, 2.5): 0.0}  # 3d: below 0.03, taken as 0 at Z = 1
 
-# Scaled one-loop self energy F(Z alpha) for Z = 10, 20, 30 (non-perturbative values of Mohr 1992,
-# Phys. Rev. A 46, 4421 and Mohr & Kim 1992, Phys. Rev. A 45, 2727, as quoted in a public code).
+# Scaled one-loop self energy F(Z alpha) of 1s, 2p1/2, 2p3/2, 3d3/2, 3d5/2 for Z = 10, 20, 30
+# (non-perturbative values of Mohr 1992, Phys. Rev. A 46, 4421 and Mohr & Kim 1992, Phys. Rev. A 45,
+# 2727, as quoted in a public code).
 _F_HIGH_Z = np.array([10.0, 20.0, 30.0])
 _F_HIGH = {(1, 0, 0.5): np.array([4.6542, 3.2462, 2.5518]),
            (2, 1, 0.5): np.array([-0.1148, -0.0925, -0.0643]),
-           (2, 1, 1.5): np.array([0.1304, 0.1438, 0.1606])}
+           (2, 1, 1.5): np.array([0.1304, 0.1438, 0.1606]),
+           (3, 2, 1.5): np.array([-0.0427, -0.0420, -0.0410]),
+           (3, 2, 2.5): np.array([0.0408, 0.0417, 0.0432])}
 
 # Uehling remainder V60-type constants for the lowest states (CODATA 2006 eq. 44 ff.; from memory).
 _G_VP_LOW = {(1, 0, 0.5): -0.618724, (2, 0, 0.5): -0.808872, (2, 1, 0.5): -0.064286,
@@ -248,9 +252,9 @@ def _remainder_G(Z, n, l, j):
     Low-Z values (table above) and, for the tabulated states 1s, 2p1/2, 2p3/2, the difference between
     the non-perturbative F at Z = 10, 20, 30 and the expansion, divided by (Z alpha)^2 and interpolated
     linearly in Z from the Z = 1 value. Untabulated states of the same (l, j) family (2s, 3s, ... after
-    1s; np1/2, np3/2 after 2p) take the same change of G with Z from their own low-Z value, an
-    approximation justified by their nearly equal low-Z remainders; d and higher states keep G = 0
-    (their F is below 0.05).
+    1s; np1/2, np3/2 after 2p; nd after 3d) take the same change of G with Z from their own low-Z
+    value, an approximation justified by their nearly equal low-Z remainders; f and higher states keep
+    G = 0 (their F is below 0.02).
     """
     s = l == 0
     p = l == 1

@@ -296,3 +296,19 @@ def test_model_ordering_properties(name, n, data):
     # and the next level up is less bound
     if n < 80:
         assert term_value_invcm(name, n + 1, l, j) < t["qed"]
+
+
+@pytest.mark.parametrize(
+    ("Z", "state", "published"),
+    [
+        (1, (1, 0, 0.5), 10.316793),  # Jentschura, Mohr & Soff 1999, PRL 82, 53 (from memory)
+        (5, (1, 0, 0.5), 6.251627),  # Mohr 1992, PRA 46, 4421 (from memory); not a knot of the interpolation
+        (1, (2, 1, 0.5), -0.126396),  # Jentschura, Mohr & Soff 2001 (from memory)
+        (1, (2, 1, 1.5), 0.123501),  # same
+    ],
+)
+def test_scaled_self_energy(Z, state, published):
+    from zline.physics.levels import _self_energy_F  # the one-loop function F(Z alpha), infinite mass
+
+    n, l, j = (np.array(float(v)) for v in state)
+    assert float(_self_energy_F(float(Z), n, l, j, 1.0)) == pytest.approx(published, abs=2e-3)
