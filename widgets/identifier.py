@@ -34,7 +34,6 @@ MODES = {
 
 _KMS = u.km / u.s
 _FALLBACK_CONVENTIONS = ("optical", "radio", "relativistic")
-_STRONG_FRACTION = 0.25      # strength >= this fraction of the strongest line -> emphasised style
 _RECULL_TOLERANCE = 0.03     # re-thin labels when the on-screen line spacing changes by more than 3 %
 
 
@@ -119,7 +118,7 @@ class LineIdentifier(W.VBox):
     mode = T.Unicode("pan/zoom", help=f"mouse mode of the plot, one of {sorted(MODES)}")
 
     def __init__(self, spectrum, lines="galaxy-emission", z=0.0, velocity=0.0 * _KMS,
-                 convention="optical", medium=None, width=960, label_spacing=14.0, **kwargs):
+                 convention="optical", medium=None, width=960, label_spacing=16.0, **kwargs):
         super().__init__(**kwargs)
         if not isinstance(velocity, u.Quantity) or not velocity.unit.is_equivalent(_KMS):
             raise u.UnitTypeError(f"LineIdentifier: 'velocity' must be a Quantity with a speed unit "
@@ -210,7 +209,7 @@ class LineIdentifier(W.VBox):
         self._full_button = W.Button(description="whole spectrum")
         self._solve_button = W.Button(description="solve z", button_style="primary")
         self._undo_button = W.Button(description="drop last lock")
-        self._save_path = W.Text(value="zline-session.ecsv", description="save as",
+        self._save_path = W.Text(value="zline-session.json", description="save as",
                                  layout=W.Layout(width="300px"))
         self._save_button = W.Button(description="save")
         self._upload = W.FileUpload(accept=".fits,.fit,.fts", multiple=False, description="open FITS")
@@ -336,9 +335,9 @@ class LineIdentifier(W.VBox):
         good = flux[~mask]
         if good.size == 0:
             raise ValueError("LineIdentifier: every pixel of the spectrum is masked or not finite")
-        lo, hi = np.percentile(good, [0.5, 99.5])
+        lo, hi = np.percentile(good, 0.5), np.max(good)     # keep emission peaks on screen
         span = (hi - lo) or abs(hi) or 1.0
-        self._y0, self._y1 = lo - 0.08 * span, hi + 0.45 * span
+        self._y0, self._y1 = lo - 0.08 * span, hi + 0.35 * span
         self._pixel = float(np.median(np.diff(x))) if x.size > 1 else 1.0
         self._entries = []
         self._solution = None
@@ -397,8 +396,8 @@ class LineIdentifier(W.VBox):
         kinds = (np.array([str(s) for s in table[column]], dtype=object) if column
                  else np.full(n, "other", dtype=object))
         self._line_table = table
-        top = np.nanmax(self._strength) if n else 1.0
-        strong = self._strength >= _STRONG_FRACTION * top
+        # emphasis: the stronger half of the set (by expected strength) is drawn bold
+        strong = self._strength >= (np.nanmedian(self._strength) if n else 0.0)
         self._groups = []
         sc = {"x": self._xs, "y": self._ys}
         for kind in sorted(set(kinds)):
@@ -434,6 +433,8 @@ class LineIdentifier(W.VBox):
             self._syncing = False
         by_strength = np.argsort(-self._strength, kind="stable")
         self._jump.options = [(f"{self._labels[i]}", int(i)) for i in by_strength]
+        if by_strength.size:
+            self._jump.value = int(by_strength[0])
         self._cull_key = None
         self.figure.marks = ([self._band, self._line, self._masked]
                              + [g.marker for g in self._groups] + [g.label for g in self._groups]

@@ -132,7 +132,10 @@ def test_z_change_sends_only_x_of_marker_and_label_marks(sent, spectrum, lines):
 
 def test_one_nan_separated_mark_per_style_group(w):
     keys = [g.key for g in w._groups]
-    assert len(keys) == len(set(keys)) == 3     # computed strong, tabulated strong, tabulated weak
+    assert sorted(keys) == [("computed", False), ("computed", True), ("tabulated", False), ("tabulated", True)]
+    strong = {g.key: g.marker.stroke_width for g in w._groups}
+    assert strong[("computed", True)] > strong[("computed", False)]
+    assert w._groups[0].marker.colors != [g for g in w._groups if g.key[0] != w._groups[0].key[0]][0].marker.colors
     for g in w._groups:
         x = np.asarray(g.marker.x)
         assert x.ndim == 1 and np.isnan(x[2::3]).all() and x.size == 3 * g.index.size
