@@ -27,6 +27,7 @@ path. Rydberg carriers (``"He I"``, ``"C I"``) use charge 1 and the ion-core
 mass; below n = 20 their levels are not hydrogenic (quantum defects), and a
 `HydrogenicApproximationWarning` says so.
 """
+import functools
 import math
 import warnings
 from dataclasses import dataclass
@@ -262,16 +263,25 @@ def _remainder_G(Z, n, l, j):
     G = _lookup(_G_SE_LOW, n, l, j, default)
     if Z <= 1:
         return G
-    for key, values in _F_HIGH.items():
+    for key in _F_HIGH:
         family = (l == key[1]) & (j == key[2])
         if not np.any(family):
             continue
-        kn, kl, kj = (np.array(float(v)) for v in key)
-        knots = [float((values[i] - _expansion_without_remainder(kn, kl, kj, zk * _ALPHA)) / (zk * _ALPHA) ** 2)
-                 for i, zk in enumerate(_F_HIGH_Z)]
-        g_here = float(np.interp(Z, np.concatenate(([1.0], _F_HIGH_Z)), [_G_SE_LOW[key], *knots]))
+        g_here = float(np.interp(Z, _G_KNOT_Z, _g_knots(key)))
         G = np.where(family & (n == key[0]), g_here, np.where(family, G + (g_here - _G_SE_LOW[key]), G))
     return G
+
+
+_G_KNOT_Z = np.concatenate(([1.0], _F_HIGH_Z))
+
+
+@functools.lru_cache(maxsize=None)
+def _g_knots(key):
+    """G_SE of a tabulated state at Z = 1, 10, 20, 30 (from the low-Z value and the tabulated F)."""
+    kn, kl, kj = (np.array(float(v)) for v in key)
+    knots = [float((_F_HIGH[key][i] - _expansion_without_remainder(kn, kl, kj, zk * _ALPHA)) / (zk * _ALPHA) ** 2)
+             for i, zk in enumerate(_F_HIGH_Z)]
+    return np.array([_G_SE_LOW[key], *knots])
 
 
 def _self_energy_F(Z, n, l, j, mu):
