@@ -268,9 +268,9 @@ def _multiplets(sp, model, n_up, n_lo):
         sig = cache(n_lo[sel], l_lo) - cache(n_up[sel], l_up)
         w = weight * np.exp(2.0 * s)
         s3 = w * sig**3
-        np.add.at(acc3, sel, s3)
-        np.add.at(acc4, sel, s3 * sig)
-        np.add.at(acc1, sel, w * sig)
+        acc3[sel] += s3  # each pair appears once per call: plain fancy-index add is exact
+        acc4[sel] += s3 * sig
+        acc1[sel] += w * sig
 
     _radial.multiplet_sums(n_up, n_lo, visit_level=visit)
     scale = 2.0 * _EA0_SQ / (sp.mass_ratio * sp.charge) ** 2  # spin factor 2, a0 -> a
