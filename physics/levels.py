@@ -15,8 +15,9 @@ as a positive wavenumber in cm^-1; the vacuum wavenumber of a transition is
     1955 term for l > 0).
 ``"qed"`` (default)
     Dirac plus radiative and nuclear corrections: one-loop self energy (Z alpha
-    expansion with Bethe logarithms; for Z >= 10 the remainder is fitted to the
-    tabulated non-perturbative scaled self energy of 1s, 2p1/2 and 2p3/2),
+    expansion with Bethe logarithms; its remainder is interpolated in Z through the
+    tabulated non-perturbative scaled self energy of 1s, 2p1/2, 2p3/2, 3d3/2, 3d5/2
+    at Z = 10, 20, 30, and other s, p, d states follow their family),
     vacuum polarization (Uehling and Wichmann-Kroll leading terms), two-loop
     B40/B50 terms, Salpeter recoil and the finite nuclear size. Formulas and
     coefficients follow Mohr, Taylor & Newell 2008 (RMP 80, 633, sec. IV.A.1)
