@@ -8,6 +8,7 @@ import dataclasses
 import html
 import importlib
 import os
+import re
 import warnings
 
 import astropy.units as u
@@ -163,7 +164,7 @@ class LineIdentifier(W.VBox):
         self._ys = bq.LinearScale()
         sc = {"x": self._xs, "y": self._ys}
         self._xaxis = bq.Axis(scale=self._xs, label="", grid_lines="none")
-        self._yaxis = bq.Axis(scale=self._ys, orientation="vertical", label="", grid_lines="none",
+        self._yaxis = bq.Axis(scale=self._ys, side="left", label="", grid_lines="none",
                               label_offset="50px")
         self._band = bq.Lines(x=[0.0, 1.0], y=[[0.0, 0.0], [0.0, 0.0]], scales=sc, fill="between",
                               fill_colors=[PALETTE["band"]], fill_opacities=[0.35], colors=[PALETTE["band"]],
@@ -260,7 +261,6 @@ class LineIdentifier(W.VBox):
     @property
     def status(self):
         """Plain text of the status area (last message shown to the user)."""
-        import re
         return html.unescape(re.sub(r"<[^>]+>", "", self._status.value))
 
     # ------------------------------------------------------------------ spectrum
@@ -342,16 +342,18 @@ class LineIdentifier(W.VBox):
         self._entries = []
         self._solution = None
         self._source_name = os.fspath(source) if isinstance(source, (str, os.PathLike)) else meta.get("file")
-        kind = {"length": "wavelength", "frequency": "frequency", "energy": "energy"}.get(
-            str(xunit.physical_type), str(xunit.physical_type))
+        kind = next((name for name, unit in (("wavelength", u.m), ("frequency", u.Hz), ("energy", u.J),
+                                             ("wavenumber", 1 / u.m)) if xunit.is_equivalent(unit)),
+                    "position")
         where = f" in {medium}" if self._is_length else ""
         self._xaxis.label = f"observed {kind}{where} [{xunit.to_string('unicode')}]"
         funit = spectrum.flux.unit.to_string("unicode") if spectrum.flux.unit != u.dimensionless_unscaled else ""
         self._yaxis.label = f"flux [{funit}]" if funit else "flux"
         name = html.escape(os.path.basename(self._source_name)) if self._source_name else "spectrum"
         assumed = " (medium assumed: no keyword in the file)" if meta.get("medium_assumed") else ""
+        medium_text = f", {medium}{html.escape(assumed)}" if self._is_length else ""
         self._header.value = (f"<b>{name}</b>: {x.size} pixels, {x[0]:.6g}-{x[-1]:.6g} "
-                              f"{html.escape(xunit.to_string('unicode'))}, {medium}{html.escape(assumed)}")
+                              f"{html.escape(xunit.to_string('unicode'))}{medium_text}")
         with self._xs.hold_trait_notifications(), self._ys.hold_trait_notifications():
             self._ys.min, self._ys.max = float(self._y0), float(self._y1)
             self._xs.min, self._xs.max = float(x[0]), float(x[-1])
@@ -707,7 +709,8 @@ class LineIdentifier(W.VBox):
                 raise ValueError(f"the fitted centre {centre:.7g} +/- {centre_err:.2g} is not usable")
             if not low <= centre.value <= high:
                 raise ValueError(f"the fitted centre {centre:.7g} left the fit window")
-            if not fit.detected:
+            # emission or absorption: the size of the S/N decides
+            if not (np.isfinite(fit.snr) and abs(fit.snr) >= _physics("fitting").DETECTION_SNR):
                 raise ValueError(f"no line detected there (S/N {fit.snr:.2g})")
         except Exception as exc:    # noqa: BLE001 - fall back to the position, and say so
             fit = None

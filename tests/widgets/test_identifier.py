@@ -323,3 +323,25 @@ def test_save_and_restore_round_trip(tmp_path, spectrum_file, lines):
     assert t1["fitted"].tolist() == [True, True, False]
     assert (r._xs.min, r._xs.max) == pytest.approx((w._xs.min, w._xs.max))
     np.testing.assert_array_equal(np.asarray(r._locked.x), np.asarray(w._locked.x))
+
+
+def test_frequency_axis_divides_by_the_shift_and_absorption_locks_fit():
+    from astropy.table import QTable
+    from specutils import Spectrum
+    rng = np.random.default_rng(3)
+    nu = np.linspace(4.0, 6.0, 8000)                      # invented radio band, GHz, no medium
+    rest = np.array([5.2, 5.5]) * u.GHz
+    z = 0.02
+    flux = 1.0 + rng.normal(0.0, 0.01, nu.size)
+    for r in rest.value:                                  # absorption dips
+        flux -= 0.5 * np.exp(-0.5 * ((nu - r / (1 + z)) / 0.003) ** 2)
+    sp = Spectrum(spectral_axis=nu * u.GHz, flux=flux * u.mJy)
+    lines = QTable({"label": ["A", "B"], "rest": rest, "strength": [1.0, 0.5]})
+    w = LineIdentifier(sp, lines=lines, z=z, velocity=40 * u.km / u.s, convention="radio")
+    assert w._xaxis.label.startswith("observed frequency") and "vacuum" not in w._xaxis.label
+    expected = kinematics.observed_position(rest, z=z, velocity=40 * u.km / u.s, convention="radio")
+    np.testing.assert_allclose(marker_positions(w), np.sort(expected.to_value(u.GHz)), rtol=1e-12)
+    w.velocity = 0.0
+    lock = w.lock(near=(5.2 / (1 + z) + 0.002) * u.GHz)
+    assert lock.label == "A" and lock.fit is not None
+    assert abs(lock.observed.to_value(u.GHz) - 5.2 / (1 + z)) < 5 * lock.observed_err.to_value(u.GHz) + 1e-5
