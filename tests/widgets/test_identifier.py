@@ -345,3 +345,21 @@ def test_frequency_axis_divides_by_the_shift_and_absorption_locks_fit():
     lock = w.lock(near=(5.2 / (1 + z) + 0.002) * u.GHz)
     assert lock.label == "A" and lock.fit is not None
     assert abs(lock.observed.to_value(u.GHz) - 5.2 / (1 + z)) < 5 * lock.observed_err.to_value(u.GHz) + 1e-5
+
+
+def test_demo_notebook_runs_and_leaves_a_widget(tmp_path):
+    import shutil
+    from pathlib import Path
+
+    import nbformat
+    from nbclient import NotebookClient
+    source = Path(__file__).resolve().parents[2] / "notebooks" / "galaxy_redshift.ipynb"
+    shutil.copy(source, tmp_path / source.name)
+    nb = nbformat.read(tmp_path / source.name, as_version=4)
+    assert nb.metadata["kernelspec"]["name"] == "python3"
+    client = NotebookClient(nb, timeout=120, kernel_name="python3", resources={"metadata": {"path": str(tmp_path)}})
+    client.execute()
+    out = nb.cells[0].outputs
+    assert [o["output_type"] for o in out] == ["execute_result"]
+    assert "application/vnd.jupyter.widget-view+json" in out[0]["data"]
+    assert (tmp_path / "demo-data" / "galaxy.fits").exists()
