@@ -63,13 +63,13 @@ def _zline_version():
 
 
 def _row_from(item, index):
-    """(label, species, rest, medium, LineFit|None, observed, observed_err) for one item."""
+    """(label, species, rest, medium, LineFit|None, observed, observed_err, detected, limit)."""
     if isinstance(item, Lock):
         return (item.label, item.species, item.rest, item.medium, item.fit, item.observed,
-                item.observed_err)
+                item.observed_err, True, None)
     if isinstance(item, LineFit):
         return (item.label or f"line {index}", "", None, None, item, item.center,
-                item.center_err)
+                item.center_err, item.detected, item.upper_limit)
     if isinstance(item, dict):
         fit = item.get("fit")
         if fit is not None and not isinstance(fit, LineFit):
@@ -78,8 +78,10 @@ def _row_from(item, index):
         label = item.get("label") or (fit.label if fit is not None else "") or f"line {index}"
         observed = item.get("observed", fit.center if fit is not None else None)
         observed_err = item.get("observed_err", fit.center_err if fit is not None else None)
+        detected = item.get("detected", fit.detected if fit is not None else True)
+        limit = item.get("limit", fit.upper_limit if fit is not None else None)
         return (label, item.get("species", ""), item.get("rest"), item.get("medium"), fit,
-                observed, observed_err)
+                observed, observed_err, bool(detected), limit)
     raise TypeError(f"line_table_for_paper: item {index} must be a Lock, a LineFit or a dict "
                     f"with keys label, rest, fit; got {type(item).__name__}")
 
@@ -110,7 +112,8 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
     ----------
     locks_or_fits : iterable of `~zline.physics.identify.Lock`, `~zline.physics.fitting.LineFit` or dict
         One row per item.  A dict holds ``label``, ``rest`` (Quantity), ``fit`` (LineFit) and
-        optionally ``species``, ``medium``, ``observed``, ``observed_err``.
+        optionally ``species``, ``medium``, ``observed``, ``observed_err``, ``detected`` (bool)
+        and ``limit`` (3-sigma flux upper limit of an undetected line).
     solution : `~zline.physics.identify.RedshiftSolution`, optional
         Gives ``z``, ``z_err``, the convention and the per-line velocity residuals.
     spectrum : `specutils.Spectrum`, optional
@@ -126,7 +129,8 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
         Columns ``label, species, rest, observed, observed_err, flux, flux_err, ew, ew_err,
         fwhm_kms, fwhm_kms_err, snr, residual_kms, upper_limit, flux_limit`` (+ ``flux_dered``,
         ``flux_dered_err`` with ``ebv``); missing values are NaN.  ``upper_limit`` is True for
-        undetected lines (``flux_limit`` then holds the 3-sigma limit).
+        undetected lines (``flux_limit`` then holds the 3-sigma limit).  A Lock counts as
+        detected; a LineFit by its S/N.
     """
     settings = dict(settings or {})
     known = {"frame", "medium", "air_formula", "convention", "ebv", "ebv_err", "r_v", "caption"}
@@ -158,7 +162,7 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
     cols = {k: [] for k in ("label", "species", "rest", "observed", "observed_err", "flux",
                             "flux_err", "ew", "ew_err", "fwhm_kms", "fwhm_kms_err", "snr",
                             "residual_kms", "upper_limit", "flux_limit")}
-    for label, species, rest, _medium, fit, obs, obs_err in rows:
+    for label, species, rest, _medium, fit, obs, obs_err, detected, limit in rows:
         cols["label"].append(str(label))
         cols["species"].append(str(species or ""))
         cols["rest"].append(_to(rest, r_unit, u.spectral()))
@@ -173,9 +177,10 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
             cols["fwhm_kms"].append(_to(fit.fwhm_kms, _KMS))
             cols["fwhm_kms_err"].append(_to(fit.fwhm_kms_err, _KMS))
             cols["snr"].append(float(fit.snr))
-            limit = fit.upper_limit
-            cols["upper_limit"].append(not fit.detected)
-            cols["flux_limit"].append(_to(limit, f_unit) if limit is not None else np.nan)
+            if not detected and limit is None:
+                limit = 3.0 * fit.flux_err
+            cols["upper_limit"].append(not detected)
+            cols["flux_limit"].append(_to(limit, f_unit) if not detected else np.nan)
         else:
             for key in ("flux", "flux_err", "ew", "ew_err", "fwhm_kms", "fwhm_kms_err", "snr",
                         "flux_limit"):
@@ -402,6 +407,18 @@ def _latex_table(table, units_in_names=False):
     return out, units
 
 
+_GREEK = dict(zip("αβγδεζηθικλμνξοπρστυφχψω",
+                  ["alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota",
+                   "kappa", "lambda", "mu", "nu", "xi", "omicron", "pi", "rho", "sigma", "tau",
+                   "upsilon", "phi", "chi", "psi", "omega"]))
+
+
+def _ascii(text):
+    """FITS strings are ASCII: Greek letters spelled out, anything else as '?'."""
+    text = "".join(_GREEK.get(ch, ch) for ch in str(text))
+    return text.encode("ascii", "replace").decode("ascii")
+
+
 def _flat_meta(meta):
     """FITS-safe meta: scalars only (None -> 'none'), nested values as strings."""
     out = {}
@@ -454,8 +471,12 @@ def write_table(table, path, format="ecsv", overwrite=False):
         to_write = out
     elif format == "fits":
         to_write = QTable(table, copy=True)
+        for name in to_write.colnames:
+            if to_write[name].dtype.kind == "U":
+                to_write[name] = [_ascii(v) for v in to_write[name]]
         to_write.meta.clear()
-        to_write.meta.update(_flat_meta(table.meta))
+        to_write.meta.update({k: _ascii(v) if isinstance(v, str) else v
+                              for k, v in _flat_meta(table.meta).items()})
     else:
         to_write = table
     fd, tmp = tempfile.mkstemp(prefix=".zline-", suffix=".tmp", dir=directory)

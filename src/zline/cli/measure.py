@@ -1,0 +1,139 @@
+"""``zline measure FILE --z Z``: fit the expected lines at a trial shift and solve z or v."""
+
+import json
+import os
+import sys
+import tempfile
+
+from zline.cli import CommandError
+
+__all__ = ["COMMAND", "HELP", "FORMATS", "add_arguments", "run", "format_text"]
+
+COMMAND = "measure"
+HELP = ("Fit the lines expected at a trial redshift/velocity, solve z and v, give a line table "
+        "with upper limits for undetected lines.")
+
+FORMATS = {
+    "text": "readable summary and one line per fitted line",
+    "json": "one JSON object: z, z_err, velocity, velocity_err (km/s), lines",
+    "ecsv": "line table with units and provenance (ECSV)",
+    "fits": "line table as a FITS binary table (needs -o)",
+    "csv": "line table, comma separated (no units)",
+    "latex": "line table as LaTeX tabular (values rounded by their errors)",
+    "aastex": "line table as AASTeX deluxetable",
+}
+_BINARY = {"fits"}
+
+
+def _hdu(value):
+    """An HDU given on the command line: an integer index or an EXTNAME."""
+    try:
+        return int(value)
+    except ValueError:
+        return value
+
+
+def add_arguments(parser):
+    from zline.physics.catalog import LINE_SETS
+    from zline.physics.kinematics import CONVENTIONS
+
+    parser.add_argument("file", metavar="FILE", help="FITS file with a 1D spectrum")
+    parser.add_argument("--z", type=float, required=True, metavar="Z",
+                        help="trial redshift (0 for a Galactic nebula or radio source)")
+    parser.add_argument("--velocity", type=float, default=0.0, metavar="V",
+                        help="trial velocity in km/s on top of z (default 0)")
+    parser.add_argument("--convention", default="optical", choices=list(CONVENTIONS),
+                        help="velocity convention (default: optical)")
+    parser.add_argument("--lines", default=None, choices=sorted(LINE_SETS), metavar="SET",
+                        help="line set: " + ", ".join(sorted(LINE_SETS))
+                        + " (default: by spectral axis)")
+    parser.add_argument("--hdu", type=_hdu, default=None, metavar="N",
+                        help="HDU index or EXTNAME (default: the first spectrum-like HDU)")
+    parser.add_argument("--format", default="text", choices=list(FORMATS),
+                        help="output format (default: text)")
+    parser.add_argument("-o", "--output", default=None, metavar="OUT",
+                        help="write to this file (required for fits); existing files are kept")
+
+
+def _num(x, fmt):
+    return "-" if x is None else format(x, fmt)
+
+
+def format_text(result):
+    """Readable summary of a `Measurement.to_dict` result."""
+    out = [f"line set    {result['line_set']} ({result['medium']})",
+           f"convention  {result['convention']}",
+           f"z           {_num(result['z'], '.7f')} +- {_num(result['z_err'], '.2g')}",
+           f"velocity    {_num(result['velocity'], '.3f')} +- "
+           f"{_num(result['velocity_err'], '.2g')} km/s",
+           f"detected    {result['n_detected']} of {len(result['lines'])} lines fitted",
+           f"units       position {result['spectral_unit']}, flux {result['flux_unit']}", ""]
+    width = max([len(r["label"]) for r in result["lines"]] + [5])
+    out.append(f"{'label':<{width}}  {'observed':>14} {'err':>9} {'flux':>11} {'flux_err':>9} "
+               f"{'snr':>7} {'fwhm_kms':>9} {'resid_kms':>9}  note")
+    for r in result["lines"]:
+        if r["detected"]:
+            flux = _num(r["flux"], ".4g")
+            note = ""
+        else:
+            flux = "<" + _num(r["upper_limit"], ".3g")
+            note = r["note"]
+        out.append(f"{r['label']:<{width}}  {_num(r['observed'], '.6f'):>14} "
+                   f"{_num(r['observed_err'], '.2g'):>9} {flux:>11} "
+                   f"{_num(r['flux_err'], '.2g'):>9} {_num(r['snr'], '.1f'):>7} "
+                   f"{_num(r['fwhm_kms'], '.1f'):>9} {_num(r['residual_kms'], '.2f'):>9}  {note}")
+    return "\n".join(out)
+
+
+def _write_text(text, path):
+    if path is None:
+        print(text)
+        return
+    if os.path.exists(path):
+        raise CommandError(f"output file {path!r} exists; remove it or choose another name")
+    directory = os.path.dirname(os.path.abspath(path))
+    fd, tmp = tempfile.mkstemp(prefix=".zline-", suffix=".tmp", dir=directory)
+    try:
+        with os.fdopen(fd, "w") as fh:
+            fh.write(text + "\n")
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def run(args):
+    import astropy.units as u
+
+    from zline.physics.measure import measure_spectrum
+    from zline.physics.spectra import read_spectrum
+    from zline.physics.tables import write_table
+
+    if args.format not in FORMATS:
+        raise CommandError(f"--format {args.format!r} is not one of {list(FORMATS)}")
+    if args.format in _BINARY and not args.output:
+        raise CommandError(f"--format {args.format} is binary and needs -o OUT")
+    if args.output and os.path.exists(args.output):
+        raise CommandError(f"output file {args.output!r} exists; remove it or choose another name")
+    spectrum = read_spectrum(args.file, hdu=args.hdu)
+    m = measure_spectrum(spectrum, z=args.z, velocity=args.velocity * u.km / u.s,
+                         convention=args.convention, lines=args.lines)
+    if not m.lines:
+        raise CommandError(f"no line of set {m.line_set!r} falls inside the data of "
+                           f"{args.file!r} at z={args.z}, v={args.velocity} km/s")
+    result = m.to_dict()
+    if args.format == "text":
+        _write_text(format_text(result), args.output)
+    elif args.format == "json":
+        _write_text(json.dumps(result, indent=2, ensure_ascii=False), args.output)
+    else:
+        table = m.table()
+        if args.output:
+            write_table(table, args.output, format=args.format)
+        else:
+            with tempfile.TemporaryDirectory() as tmpdir:
+                path = write_table(table, os.path.join(tmpdir, "table"), format=args.format)
+                with open(path, encoding="utf-8") as fh:
+                    sys.stdout.write(fh.read())
+    return 0

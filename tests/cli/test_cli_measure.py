@@ -1,0 +1,76 @@
+"""Tests of ``zline measure`` through zline.cli.main."""
+
+import json
+
+import pytest
+from astropy.table import QTable
+
+from zline.cli import main
+from zline.physics.demo import DEMO_TRUTH, write_demo_spectra
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    return write_demo_spectra(tmp_path_factory.mktemp("demo"))
+
+
+def test_json_nebula_velocity(demo, capsys):
+    assert main(["measure", str(demo["nebula"]), "--z", "0", "--format", "json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    for key in ("z", "z_err", "velocity", "velocity_err", "lines"):
+        assert key in out
+    assert abs(out["velocity"] - DEMO_TRUTH["nebula"]["velocity"].value) < 3
+    line = out["lines"][0]
+    for key in ("label", "rest", "observed", "observed_err", "flux", "flux_err", "ew",
+                "fwhm_kms", "snr", "residual_kms", "upper_limit"):
+        assert key in line
+
+
+def test_json_radio_velocity(demo, capsys):
+    rc = main(["measure", str(demo["radio"]), "--z", "0", "--convention", "radio",
+               "--format", "json"])
+    assert rc == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["convention"] == "radio"
+    assert abs(out["velocity"] - DEMO_TRUTH["radio"]["velocity"].value) < 1.0
+
+
+def test_ecsv_output_file(demo, tmp_path, capsys):
+    target = tmp_path / "lines.ecsv"
+    z = DEMO_TRUTH["galaxy"]["z"]
+    assert main(["measure", str(demo["galaxy"]), "--z", str(z), "--format", "ecsv",
+                 "-o", str(target)]) == 0
+    t = QTable.read(target)
+    assert abs(t.meta["z"] - z) < 2e-4 and t.meta["source_file"] == str(demo["galaxy"])
+    assert str(t["observed"].unit) == "Angstrom"
+    # the file is kept on a second run
+    assert main(["measure", str(demo["galaxy"]), "--z", str(z), "--format", "ecsv",
+                 "-o", str(target)]) == 2
+    assert "exists" in capsys.readouterr().err
+
+
+def test_text_and_latex(demo, capsys):
+    assert main(["measure", str(demo["galaxy"]), "--z", "0.0734"]) == 0
+    assert "velocity" in capsys.readouterr().out
+    assert main(["measure", str(demo["galaxy"]), "--z", "0.0734", "--format", "latex"]) == 0
+    assert "\\pm" in capsys.readouterr().out
+
+
+def test_errors_are_one_line(demo, tmp_path, capsys):
+    assert main(["measure", str(demo["galaxy"]), "--z", "0.07", "--format", "fits"]) == 2
+    err = capsys.readouterr().err
+    assert "needs -o" in err and err.count("\n") == 1
+    assert main(["measure", str(tmp_path / "missing.fits"), "--z", "0"]) != 0
+    err = capsys.readouterr().err
+    assert "missing.fits" in err and err.count("\n") == 1
+    with pytest.raises(SystemExit) as exc:
+        main(["measure", str(demo["galaxy"]), "--z", "0", "--convention", "fast"])
+    assert exc.value.code == 2
+    assert capsys.readouterr().err.count("\n") == 1
+
+
+def test_fits_needs_output_and_writes(demo, tmp_path):
+    target = tmp_path / "lines.fits"
+    assert main(["measure", str(demo["xray"]), "--z", "0.0179", "--format", "fits",
+                 "-o", str(target)]) == 0
+    assert QTable.read(target)["observed"].unit == "keV"

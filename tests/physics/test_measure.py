@@ -1,0 +1,93 @@
+"""Tests of zline.physics.measure on the invented demo spectra (truth in their headers)."""
+
+import astropy.units as u
+import numpy as np
+import pytest
+from astropy.tests.helper import assert_quantity_allclose
+
+from zline.physics.demo import DEMO_TRUTH, write_demo_spectra
+from zline.physics.measure import default_line_set, measure_spectrum
+from zline.physics.spectra import read_spectrum
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    paths = write_demo_spectra(tmp_path_factory.mktemp("demo"))
+    return {name: read_spectrum(path) for name, path in paths.items()}
+
+
+def test_default_sets(demo):
+    assert default_line_set(demo["galaxy"]) == "galaxy-emission"
+    assert default_line_set(demo["radio"]) == "radio"
+    assert default_line_set(demo["xray"]) == "xray"
+
+
+def test_galaxy_redshift(demo):
+    truth = DEMO_TRUTH["galaxy"]["z"]
+    m = measure_spectrum(demo["galaxy"], z=truth + 3e-4)  # trial 90 km/s off the truth
+    assert len(m.locks) >= 5
+    assert abs(m.z - truth) < 3 * m.z_err and abs(m.z - truth) < 2e-4
+    assert m.medium == "vacuum" and m.line_set == "galaxy-emission"
+    assert_quantity_allclose(m.velocity, m.solution.velocity)
+
+
+def test_nebula_velocity_air(demo):
+    truth = DEMO_TRUTH["nebula"]["velocity"]
+    m = measure_spectrum(demo["nebula"], z=0.0)
+    assert m.medium == "air"  # the file says air; the set follows it
+    assert m.solution.solve_for == "velocity"
+    assert abs(m.velocity - truth) < 3 * u.km / u.s
+
+
+def test_radio_velocity(demo):
+    truth = DEMO_TRUTH["radio"]["velocity"]
+    m = measure_spectrum(demo["radio"], z=0.0, convention="radio")
+    assert m.convention == "radio" and len(m.locks) >= 3
+    dv = abs((m.velocity - truth).to_value(u.km / u.s))
+    assert dv < 3 * m.velocity_err.to_value(u.km / u.s) + 0.5
+
+
+def test_xray_redshift(demo):
+    truth = DEMO_TRUTH["xray"]["z"]
+    m = measure_spectrum(demo["xray"], z=truth)
+    assert m.line_set == "xray" and abs(m.z - truth) < 2e-4
+
+
+def test_undetected_lines_get_limits(demo):
+    m = measure_spectrum(demo["galaxy"], z=DEMO_TRUTH["galaxy"]["z"])
+    missing = [r for r in m.lines if not r["detected"]]
+    assert missing, "the galaxy set has lines the demo does not contain"
+    for r in missing:
+        assert r["limit"].unit == r["fit"].flux.unit and r["limit"].value > 0
+        assert r["reason"]
+    d = m.to_dict()
+    assert {"z", "z_err", "velocity", "velocity_err", "lines"} <= set(d)
+    limits = [line for line in d["lines"] if not line["detected"]]
+    assert all(line["upper_limit"] is not None for line in limits)
+    table = m.table()
+    assert int(table["upper_limit"].sum()) == len(missing)
+    assert table.meta["z"] == m.z
+
+
+def test_wrong_trial_finds_nothing(demo):
+    # A trial 1000 km/s off: only chance coincidences of a rich line list lock (e.g. Halpha
+    # predicted onto [N II] 6583), far fewer than at the right velocity.
+    right = measure_spectrum(demo["nebula"], z=0.0)
+    wrong = measure_spectrum(demo["nebula"], z=0.0, velocity=1000 * u.km / u.s)
+    assert len(wrong.locks) < len(right.locks) / 4
+    # nothing to lock at all: no result rather than a made-up one
+    none = measure_spectrum(demo["nebula"], z=0.0, velocity=-800 * u.km / u.s,
+                            tolerance=10 * u.km / u.s)
+    assert none.locks == [] and np.isnan(none.z) and none.solution is None
+    assert all(r["limit"].value > 0 for r in none.lines)
+
+
+def test_bad_arguments(demo):
+    with pytest.raises(TypeError, match="'velocity' must be a velocity"):
+        measure_spectrum(demo["galaxy"], z=0.07, velocity=10)
+    with pytest.raises(ValueError, match="unknown convention 'fast'"):
+        measure_spectrum(demo["galaxy"], z=0.07, convention="fast")
+    with pytest.raises(ValueError, match="unknown line set 'stars'"):
+        measure_spectrum(demo["galaxy"], z=0.07, lines="stars")
+    with pytest.raises(TypeError, match="'z' must be a plain"):
+        measure_spectrum(demo["galaxy"], z=0.07 * u.one)
