@@ -15,7 +15,9 @@ The work is vectorised over many ``(n, n')`` pairs at once: one step per value o
 import numpy as np
 from scipy.special import gammaln
 
-__all__ = ["radial_dipole", "radial_ladder", "multiplet_sums", "same_shell_dipole"]
+__all__ = [
+    "radial_dipole", "radial_ladder", "multiplet_sums", "multiplet_moments", "same_shell_dipole",
+]
 
 
 def _c(n, l):
@@ -197,3 +199,93 @@ def multiplet_sums(n_up, n_lo, visit_level=None):
 
     _ladder(nu, nl, visit)
     return total
+
+
+def multiplet_moments(n_up, n_lo, term):
+    """Line-strength weighted moments of the component wavenumbers of each shell pair.
+
+    One pass of the same recurrence as `multiplet_sums`, fused with the weighting, run on
+    contiguous prefixes of the pairs sorted by ``n_lo`` (no per-step callbacks or scatter).
+
+    Parameters
+    ----------
+    n_up, n_lo : array of int
+        Upper and lower principal quantum numbers, ``n_up > n_lo >= 1``.
+    term : ndarray of float
+        Level term values, flat over ``(n, l)``: ``term[n (n - 1) / 2 + l]`` for every
+        ``n <= max(n_up)`` and ``0 <= l < n``.  A component's wavenumber is
+        ``term(n_lo, l') - term(n_up, l)``.
+
+    Returns
+    -------
+    m1, m3, m4 : ndarray of float
+        ``sum_{l,l'} w sigma**k`` for k = 1, 3, 4, with ``w = max(l, l') |R|**2`` (a0**2, no
+        spin factor) and ``sigma`` the component wavenumber (units of ``term``).
+    """
+    n_up, n_lo = _check_pairs(np.atleast_1d(n_up), np.atleast_1d(n_lo))
+    term = np.asarray(term, dtype=float)
+    need = int(n_up.max()) * (int(n_up.max()) + 1) // 2 if n_up.size else 0
+    if term.size < need:
+        raise ValueError(f"'term' must hold {need} values (all l of n <= {int(n_up.max())}); "
+                         f"got {term.size}")
+    order = np.argsort(-n_lo, kind="stable")
+    nu_i = n_up[order].astype(np.int64)
+    nl_i = n_lo[order].astype(np.int64)
+    nu = nu_i.astype(float)
+    nl = nl_i.astype(float)
+    npair = nu.size
+    # flat indices of (n_lo, l' = n_lo - 1) and (n_up, l = n_lo - 1); step k lowers both by k
+    idx_lo = nl_i * (nl_i - 1) // 2 + nl_i - 1
+    idx_up = nu_i * (nu_i - 1) // 2 + nl_i - 1
+    m1 = np.zeros(npair)
+    m3 = np.zeros(npair)
+    m4 = np.zeros(npair)
+    if npair == 0:
+        return m1, m3, m4
+    s = _log_r0(nu, nl)
+    lt = nl - 1.0
+    P = np.ones(npair)
+    cu_l = _c(nu, lt)  # c(n_up, lt); carried down as c(n_up, lt + 1) of the next step
+    M = _c(nu, nl) / (2.0 * nl * cu_l)
+    M_next = np.zeros(npair)
+    cu_l1 = _c(nu, nl)  # c(n_up, lt + 1)
+    cl_l1 = _c(nl, nl)  # c(n_lo, lt + 1)
+    nmax = int(nl[0])
+    counts = np.searchsorted(-nl, -(np.arange(nmax) + 1.0), side="right")
+    for k in range(nmax):
+        m = counts[k]
+        if k > 0:
+            lt = nl[:m] - 1.0 - k
+            nu_k, nl_k = nu[:m], nl[:m]
+            cu_l2, cl_l2 = cu_l1[:m], cl_l1[:m]  # c(., lt + 2) = last step's c(., lt + 1)
+            cu_l1 = cu_l[:m]
+            cl_l1 = _c(nl_k, lt + 1.0)
+            cu_l = _c(nu_k, lt)
+            Pn = ((2.0 * lt + 3.0) * cu_l2 * P[:m] + cl_l2 * M_next[:m]) / (
+                2.0 * (lt + 2.0) * cl_l1)
+            Mn = (cu_l1 * Pn + (2.0 * lt + 1.0) * cl_l1 * M[:m]) / (2.0 * (lt + 1.0) * cu_l)
+            M_next = M[:m].copy()
+            big = np.maximum(np.abs(Pn), np.abs(Mn))
+            big[big == 0] = 1.0
+            P, M, M_next = Pn / big, Mn / big, M_next / big
+            s = s[:m] + np.log(big)
+        e2s = np.exp(2.0 * s)
+        t_lo = term[idx_lo[:m] - k]
+        # l = l' + 1
+        sig = t_lo - term[idx_up[:m] - k + 1]
+        w = (lt + 1.0) * P * P * e2s
+        s3 = w * sig**3
+        m3[:m] += s3
+        m4[:m] += s3 * sig
+        m1[:m] += w * sig
+        # l = l' - 1 (weight l' M**2 vanishes at l' = 0; index clipped there)
+        sig = t_lo - term[np.maximum(idx_up[:m] - k - 1, 0)]
+        w = lt * M * M * e2s
+        s3 = w * sig**3
+        m3[:m] += s3
+        m4[:m] += s3 * sig
+        m1[:m] += w * sig
+    out = [np.empty(npair) for _ in range(3)]
+    for o, v in zip(out, (m1, m3, m4)):
+        o[order] = v
+    return tuple(out)
