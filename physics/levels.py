@@ -187,9 +187,29 @@ def _bethe_log(n, l):
 
 
 def _lookup(table, n, l, j, default):
-    out = np.array(default, dtype=float, copy=True)
+    shape = np.broadcast(n, l, j, default).shape
+    out = np.array(np.broadcast_to(default, shape), dtype=float)
+    if not table:
+        return out
+    # tabulated states are all low n: compare only the few candidates
+    cand = np.broadcast_to(n, shape) <= max(key[0] for key in table)
+    if not np.any(cand):
+        return out
+    nc, lc, jc = (np.broadcast_to(x, shape)[cand] for x in (n, l, j))
+    sub = out[cand]
     for (nn, ll, jj), value in table.items():
-        out = np.where((n == nn) & (l == ll) & (j == jj), value, out)
+        sub = np.where((nc == nn) & (lc == ll) & (jc == jj), value, sub)
+    out[cand] = sub
+    return out
+
+
+def _where_only(mask, func, *arrays):
+    """``func(*arrays)`` where ``mask``, 0.0 elsewhere, evaluating ``func`` on the masked elements only."""
+    shape = np.broadcast(mask, *arrays).shape
+    out = np.zeros(shape)
+    mask = np.broadcast_to(mask, shape)
+    if np.any(mask):
+        out[mask] = func(*(np.broadcast_to(np.asarray(a, dtype=float), shape)[mask] for a in arrays))
     return out
 
 
@@ -211,7 +231,7 @@ def _dirac_invcm(Z, mu, n, l, j):
     return -energy * _MEC2
 
 
-def _se_coefficients(n, l, j):
+def _se_coefficients(n, l, j, bethe=None):
     """One-loop self-energy coefficients A41, A40 (non-magnetic), A40 magnetic, A50, A61, A62.
 
     Mohr, Taylor & Newell 2008 (RMP 80, 633) eqs. 32-37: A41 = 4/3 d_l0;
@@ -222,14 +242,15 @@ def _se_coefficients(n, l, j):
     p = l == 1
     kappa = np.where(j > l, -(l + 1.0), l)
     A41 = np.where(s, 4.0 / 3.0, 0.0)
-    A40 = -4.0 / 3.0 * _bethe_log(n, l) + np.where(s, 10.0 / 9.0, 0.0)
+    A40 = -4.0 / 3.0 * (_bethe_log(n, l) if bethe is None else bethe) + np.where(s, 10.0 / 9.0, 0.0)
     A40_mag = np.where(s, 0.0, -1.0 / (2.0 * np.where(s, 1.0, kappa * (2.0 * l + 1.0))))
     A50 = np.where(s, (139.0 / 32.0 - 2.0 * math.log(2.0)) * math.pi, 0.0)
     A62 = np.where(s, -1.0, 0.0)
-    A61 = np.where(
+    A61 = _where_only(
         s,
-        4.0 * _harmonic(n) + 28.0 / 3.0 * math.log(2.0) - 4.0 * np.log(n) - 601.0 / 180.0 - 77.0 / (45.0 * n**2),
-        0.0,
+        lambda n: 4.0 * _harmonic(n) + 28.0 / 3.0 * math.log(2.0) - 4.0 * np.log(n) - 601.0 / 180.0
+        - 77.0 / (45.0 * n**2),
+        n,
     ) + np.where(p, (1.0 - 1.0 / n**2) * (2.0 / 15.0 + np.where(j == 0.5, 1.0 / 3.0, 0.0)), 0.0)
     lm = np.maximum(l, 1.0)
     A61 = A61 + np.where(
@@ -285,7 +306,7 @@ def _g_knots(key):
     return np.array([_G_SE_LOW[key], *knots])
 
 
-def _self_energy_F(Z, n, l, j, mu):
+def _self_energy_F(Z, n, l, j, mu, bethe=None):
     """Scaled one-loop self energy F(Z alpha) including the CODATA mass factors.
 
     All terms carry (m_r/m_e)^3 and logs take (m_e/m_r)(Z alpha)^-2, except the magnetic-moment part
@@ -293,7 +314,7 @@ def _self_energy_F(Z, n, l, j, mu):
     """
     za = Z * _ALPHA
     L = math.log(za**-2)
-    A41, A40, A40_mag, A50, A61, A62 = _se_coefficients(n, l, j)
+    A41, A40, A40_mag, A50, A61, A62 = _se_coefficients(n, l, j, bethe)
     G = _remainder_G(Z, n, l, j)
     F3 = A41 * (L - math.log(mu)) + A40 + A50 * za + A62 * za * za * L * L + A61 * za * za * L + G * za * za
     return F3 * mu**3 + A40_mag * mu**2
@@ -309,7 +330,8 @@ def _qed_correction(sp, n, l, j):
     kappa = np.where(j > l, -(l + 1.0), l)
     scale = (_ALPHA / math.pi) * za**4 / n**3
     # one-loop self energy
-    e_se = scale * _self_energy_F(Z, n, l, j, mu)
+    bethe = _bethe_log(n, l)
+    e_se = scale * _self_energy_F(Z, n, l, j, mu, bethe)
     # vacuum polarization: Uehling C40, C50, C61 and remainder, Wichmann-Kroll leading term
     g_vp = _lookup(_G_VP_LOW, n, l, j, np.where(s, -0.85, 0.0))
     wk = np.where(s, 19.0 / 45.0 - math.pi**2 / 27.0, 0.0)
@@ -323,11 +345,11 @@ def _qed_correction(sp, n, l, j):
     e_2l = (_ALPHA / math.pi) * scale * B
     # Salpeter recoil (CODATA 2006 eq. 29)
     r = (1.0 - mu) / mu  # m_e / m_N
-    harmonic = _harmonic(n)
     lm = np.maximum(l, 1.0)
-    a_n = np.where(s, -2.0 * (np.log(2.0 / n) + harmonic + 1.0 - 1.0 / (2.0 * n)), 1.0 / (lm * (lm + 1) * (2 * lm + 1)))
+    a_s = _where_only(s, lambda n: -2.0 * (np.log(2.0 / n) + _harmonic(n) + 1.0 - 1.0 / (2.0 * n)), n)
+    a_n = np.where(s, a_s, 1.0 / (lm * (lm + 1) * (2 * lm + 1)))
     last = 2.0 / (1.0 - r * r) * (math.log(1.0 / mu) - (mu * r) ** 2 * math.log(1.0 / (mu * r)))
-    bracket = (np.where(s, L / 3.0 - 1.0 / 9.0 - last, 0.0) - 8.0 / 3.0 * _bethe_log(n, l) - 7.0 / 3.0 * a_n)
+    bracket = (np.where(s, L / 3.0 - 1.0 / 9.0 - last, 0.0) - 8.0 / 3.0 * bethe - 7.0 / 3.0 * a_n)
     e_rec = mu**3 * r * za**5 / (math.pi * n**3) * bracket
     # finite nuclear size, s states (CODATA 2006 eq. 59, leading term)
     if sp.rydberg:
