@@ -250,22 +250,25 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
 
     ebv = settings.get("ebv")
     if ebv is not None:
-        from zline.physics.nebular import deredden
+        from zline.physics.nebular import k_lambda
 
         r_v = float(settings.get("r_v", 3.1))
-        wave = u.Quantity(t["rest"]).to(u.AA, equivalencies=u.spectral())
-        ebv_err = float(settings.get("ebv_err", 0.0))
-        corr, corr_err = deredden(np.ones(len(t)) * fu, wave, float(ebv), r_v=r_v,
-                                  ebv_err=ebv_err)
-        t["flux_dered"] = t["flux"] * corr.value
+        curve = "ccm89"
+        ebv_err = settings.get("ebv_err", 0.0)
+        ebv = float(ebv.to_value(u.mag) if isinstance(ebv, u.Quantity) else ebv)
+        ebv_err = float(ebv_err.to_value(u.mag) if isinstance(ebv_err, u.Quantity) else ebv_err)
+        kk = k_lambda(u.Quantity(t["rest"]), r_v, curve)
+        corr = 10.0 ** (0.4 * kk * float(ebv))
+        corr_err = corr * 0.4 * math.log(10.0) * kk * ebv_err
+        t["flux_dered"] = t["flux"] * corr
         rel = np.hypot(np.asarray(t["flux_err"].value) / np.asarray(t["flux"].value),
-                       corr_err.value / corr.value)
+                       corr_err / corr)
         t["flux_dered_err"] = np.abs(t["flux_dered"]) * rel
         t["flux_dered"].info.description = "flux corrected for extinction (CCM89)"
         meta["ebv"] = float(ebv)
         meta["ebv_err"] = ebv_err
         meta["r_v"] = r_v
-        meta["extinction_curve"] = "ccm89"
+        meta["extinction_curve"] = curve
     t.meta.update(meta)
     return t
 
