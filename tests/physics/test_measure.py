@@ -91,3 +91,18 @@ def test_bad_arguments(demo):
         measure_spectrum(demo["galaxy"], z=0.07, lines="stars")
     with pytest.raises(TypeError, match="'z' must be a plain"):
         measure_spectrum(demo["galaxy"], z=0.07 * u.one)
+
+
+def test_custom_line_table(demo):
+    from astropy.table import QTable
+
+    from zline.physics.catalog import line_set
+
+    full = line_set("galaxy-emission")
+    mine = QTable(full[np.isin(full["label"], ["Hα", "Hβ"])])
+    assert len(mine) == 2
+    m = measure_spectrum(demo["galaxy"], z=DEMO_TRUTH["galaxy"]["z"], lines=mine)
+    assert m.line_set == "custom" and {lock.label for lock in m.locks} == {"Hα", "Hβ"}
+    assert abs(m.z - DEMO_TRUTH["galaxy"]["z"]) < 2e-4
+    with pytest.raises(ValueError, match="needs a 'rest' column"):
+        measure_spectrum(demo["galaxy"], z=0.07, lines=QTable({"label": ["x"]}))
