@@ -252,36 +252,43 @@ def multiplet_moments(n_up, n_lo, term):
     cl_l1 = _c(nl, nl)  # c(n_lo, lt + 1)
     nmax = int(nl[0])
     counts = np.searchsorted(-nl, -(np.arange(nmax) + 1.0), side="right")
+    # integer-valued floats below are exact, so these rearrangements change no bits
+    lt0 = nl - 1.0
+    nu2, nl2 = nu * nu, nl * nl
     for k in range(nmax):
         m = counts[k]
         if k > 0:
-            lt = nl[:m] - 1.0 - k
+            lt = lt0[:m] - k
             nu_k, nl_k = nu[:m], nl[:m]
             cu_l2, cl_l2 = cu_l1[:m], cl_l1[:m]  # c(., lt + 2) = last step's c(., lt + 1)
             cu_l1 = cu_l[:m]
-            cl_l1 = _c(nl_k, lt + 1.0)
-            cu_l = _c(nu_k, lt)
-            Pn = ((2.0 * lt + 3.0) * cu_l2 * P[:m] + cl_l2 * M_next[:m]) / (
-                2.0 * (lt + 2.0) * cl_l1)
-            Mn = (cu_l1 * Pn + (2.0 * lt + 1.0) * cl_l1 * M[:m]) / (2.0 * (lt + 1.0) * cu_l)
-            M_next = M[:m].copy()
+            lp1 = lt + 1.0
+            tl = lt + lt
+            cl_l1 = np.sqrt(nl2[:m] - lp1 * lp1) / nl_k  # _c(n_lo, lt + 1); n_lo >= lt + 1
+            cu_l = np.sqrt(nu2[:m] - lt * lt) / nu_k  # _c(n_up, lt); n_up > lt
+            Pn = ((tl + 3.0) * cu_l2 * P[:m] + cl_l2 * M_next[:m]) / ((tl + 4.0) * cl_l1)
+            Mn = (cu_l1 * Pn + (tl + 1.0) * cl_l1 * M[:m]) / ((tl + 2.0) * cu_l)
             big = np.maximum(np.abs(Pn), np.abs(Mn))
             big[big == 0] = 1.0
-            P, M, M_next = Pn / big, Mn / big, M_next / big
+            M_next = M[:m] / big
+            P = Pn / big
+            M = Mn / big
             s = s[:m] + np.log(big)
+        else:
+            lp1 = lt + 1.0
         e2s = np.exp(2.0 * s)
         t_lo = term[idx_lo[:m] - k]
         # l = l' + 1
-        sig = t_lo - term[idx_up[:m] - k + 1]
-        w = (lt + 1.0) * P * P * e2s
-        s3 = w * sig**3
+        sig = t_lo - term[idx_up[:m] - (k - 1)]
+        w = lp1 * P * P * e2s
+        s3 = w * (sig * sig * sig)
         m3[:m] += s3
         m4[:m] += s3 * sig
         m1[:m] += w * sig
-        # l = l' - 1 (weight l' M**2 vanishes at l' = 0; index clipped there)
-        sig = t_lo - term[np.maximum(idx_up[:m] - k - 1, 0)]
+        # l = l' - 1 (weight l' M**2 vanishes at l' = 0, where the index is a harmless neighbour)
+        sig = t_lo - term[idx_up[:m] - (k + 1)]
         w = lt * M * M * e2s
-        s3 = w * sig**3
+        s3 = w * (sig * sig * sig)
         m3[:m] += s3
         m4[:m] += s3 * sig
         m1[:m] += w * sig
