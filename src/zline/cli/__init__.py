@@ -55,14 +55,14 @@ def main(argv=None):
         return 2
     try:
         return int(args._run(args) or 0)
+    except BrokenPipeError:  # output piped into e.g. `head`: not an error
+        return 0
     except CommandError as exc:
         print(f"zline {args.command}: error: {exc}", file=sys.stderr)
         return 2
     except (ValueError, OSError, KeyError) as exc:
         print(f"zline {args.command}: error: {exc}", file=sys.stderr)
         return 1
-    except BrokenPipeError:  # pragma: no cover
-        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover
