@@ -236,32 +236,49 @@ def series_limit(species, n_lower, model="qed", unit=u.AA):
 # ---------------------------------------------------------------------------------- tables
 
 
-class _LevelCache:
-    """(2j+1)-weighted mean term value T(n, l) [cm^-1] for all l of n = 1..nmax, flat."""
+_LEVEL_TABLES = {}  # (species repr, model) -> read-only mean term table, largest nmax so far
+_LEVEL_TABLES_MAX = 16  # species/model combinations kept (about 4 MB each at n = 1000)
 
-    def __init__(self, sp, model, nmax):
-        _, levels, _ = _lazy()
-        n = np.repeat(np.arange(1, nmax + 1), np.arange(1, nmax + 1))
-        start = n * (n - 1) // 2
-        l = np.arange(n.size) - start
-        jlo = np.where(l > 0, l - 0.5, 0.5)
-        jhi = l + 0.5
-        t_hi = np.asarray(levels.term_value_invcm(sp, n, l, jhi, model), dtype=float)
-        t_lo = np.asarray(levels.term_value_invcm(sp, n, l, jlo, model), dtype=float)
-        w_lo = np.where(l > 0, 2.0 * l, 0.0)
-        self.table = (w_lo * t_lo + (2.0 * l + 2.0) * t_hi) / (w_lo + 2.0 * l + 2.0)
 
-    def __call__(self, n, l):
-        n = np.asarray(n, dtype=np.int64)
-        return self.table[n * (n - 1) // 2 + np.asarray(l, dtype=np.int64)]
+def _mean_term_table(sp, model, nmax):
+    """(2j+1)-weighted mean term value T(n, l) [cm^-1] for all l of n = 1..nmax, flat.
+
+    ``T(n, l)`` sits at index ``n (n - 1) / 2 + l``, so the table for a smaller ``nmax`` is a
+    prefix of a larger one: each species and model is computed once, at the largest ``nmax``
+    asked for so far, and later calls slice it (same values, read-only).
+    """
+    _, levels, _ = _lazy()
+    key = (repr(sp), model)
+    size = nmax * (nmax + 1) // 2
+    table = _LEVEL_TABLES.get(key)
+    if table is not None and table.size >= size:
+        _LEVEL_TABLES[key] = _LEVEL_TABLES.pop(key)  # most recently used last
+        if sp.rydberg:  # the notice a fresh computation would give (the table starts at n = 1)
+            levels._warn_rydberg(sp, np.array([1]))
+        return table[:size]
+    n = np.repeat(np.arange(1, nmax + 1), np.arange(1, nmax + 1))
+    start = n * (n - 1) // 2
+    l = np.arange(n.size) - start
+    jlo = np.where(l > 0, l - 0.5, 0.5)
+    jhi = l + 0.5
+    t_hi = np.asarray(levels.term_value_invcm(sp, n, l, jhi, model), dtype=float)
+    t_lo = np.asarray(levels.term_value_invcm(sp, n, l, jlo, model), dtype=float)
+    w_lo = np.where(l > 0, 2.0 * l, 0.0)
+    table = (w_lo * t_lo + (2.0 * l + 2.0) * t_hi) / (w_lo + 2.0 * l + 2.0)
+    table.flags.writeable = False
+    _LEVEL_TABLES.pop(key, None)
+    while len(_LEVEL_TABLES) >= _LEVEL_TABLES_MAX:
+        _LEVEL_TABLES.pop(next(iter(_LEVEL_TABLES)))  # oldest first
+    _LEVEL_TABLES[key] = table
+    return table
 
 
 def _multiplets(sp, model, n_up, n_lo):
     """sigma centroid [cm^-1], A [s^-1], f for multiplets n_up -> n_lo (arrays)."""
     nmax = int(max(n_up.max(), n_lo.max()))
-    cache = _LevelCache(sp, model, nmax)
+    table = _mean_term_table(sp, model, nmax)
     # sum S sigma, S sigma^3, S sigma^4 over the components, one fused pass over all pairs
-    acc1, acc3, acc4 = _radial.multiplet_moments(n_up, n_lo, cache.table)
+    acc1, acc3, acc4 = _radial.multiplet_moments(n_up, n_lo, table)
     scale = 2.0 * _EA0_SQ / (sp.mass_ratio * sp.charge) ** 2  # spin factor 2, a0 -> a
     sigma = acc4 / acc3
     g_u = 2.0 * n_up.astype(float) ** 2
