@@ -3,6 +3,7 @@
 import json
 
 from zline.cli import CommandError
+from zline.cli._common import add_hdu_option
 
 __all__ = ["COMMAND", "HELP", "add_arguments", "run", "format_text"]
 
@@ -12,18 +13,9 @@ HELP = "Describe the 1D spectrum in a FITS file: layout, spectral range, units, 
 FORMATS = {"text": "aligned key: value lines", "json": "one JSON object (describe_spectrum keys)"}
 
 
-def _hdu(value):
-    """An HDU given on the command line: an integer index or an EXTNAME."""
-    try:
-        return int(value)
-    except ValueError:
-        return value
-
-
 def add_arguments(parser):
     parser.add_argument("file", metavar="FILE", help="FITS file (.fits or .fits.gz)")
-    parser.add_argument("--hdu", type=_hdu, default=None, metavar="N|NAME",
-                        help="HDU index or EXTNAME (default: the first spectrum-like HDU)")
+    add_hdu_option(parser)
     parser.add_argument("--format", default="text", choices=sorted(FORMATS),
                         help="output format (default: text)")
 

@@ -6,6 +6,7 @@ import sys
 import tempfile
 
 from zline.cli import CommandError
+from zline.cli._common import add_hdu_option
 
 __all__ = ["COMMAND", "HELP", "FORMATS", "add_arguments", "run", "format_text"]
 
@@ -25,14 +26,6 @@ FORMATS = {
 _BINARY = {"fits"}
 
 
-def _hdu(value):
-    """An HDU given on the command line: an integer index or an EXTNAME."""
-    try:
-        return int(value)
-    except ValueError:
-        return value
-
-
 def add_arguments(parser):
     from zline.physics.catalog import LINE_SETS
     from zline.physics.kinematics import CONVENTIONS
@@ -47,8 +40,7 @@ def add_arguments(parser):
     parser.add_argument("--lines", default=None, choices=sorted(LINE_SETS), metavar="SET",
                         help="line set: " + ", ".join(sorted(LINE_SETS))
                         + " (default: by spectral axis)")
-    parser.add_argument("--hdu", type=_hdu, default=None, metavar="N",
-                        help="HDU index or EXTNAME (default: the first spectrum-like HDU)")
+    add_hdu_option(parser)
     parser.add_argument("--format", default="text", choices=list(FORMATS),
                         help="output format (default: text)")
     parser.add_argument("-o", "--output", default=None, metavar="OUT",

@@ -3,6 +3,7 @@
 import json
 
 from zline.cli import CommandError
+from zline.cli._common import add_hdu_option
 
 __all__ = ["COMMAND", "HELP", "FORMATS", "DEFAULT_SETS", "add_arguments", "run", "format_text",
            "default_line_set"]
@@ -17,21 +18,11 @@ DEFAULT_SETS = {"length": "galaxy-emission", "frequency": "radio", "energy": "xr
                 "wavenumber": "galaxy-emission"}
 
 
-def _hdu(value):
-    try:
-        return int(value)
-    except ValueError:
-        return value
-
-
-
-
 def add_arguments(parser):
     from zline.physics.catalog import LINE_SETS
 
     parser.add_argument("file", metavar="FILE", help="FITS file (.fits or .fits.gz)")
-    parser.add_argument("--hdu", type=_hdu, default=None, metavar="N|NAME",
-                        help="HDU index or EXTNAME (default: the first spectrum-like HDU)")
+    add_hdu_option(parser)
     parser.add_argument("--z-min", type=float, default=0.0, help="lowest redshift (default 0)")
     parser.add_argument("--z-max", type=float, default=3.0, help="highest redshift (default 3)")
     parser.add_argument("--lines", default=None, choices=sorted(LINE_SETS), metavar="SET",
