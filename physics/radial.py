@@ -201,6 +201,9 @@ def multiplet_sums(n_up, n_lo, visit_level=None):
     return total
 
 
+_RENORM_EVERY = 4  # rescale period of multiplet_moments; one step changes |P|, |M| by < 50 (n <= 1e4)
+
+
 def multiplet_moments(n_up, n_lo, term):
     """Line-strength weighted moments of the component wavenumbers of each shell pair.
 
@@ -268,15 +271,20 @@ def multiplet_moments(n_up, n_lo, term):
             cu_l = np.sqrt(nu2[:m] - lt * lt) / nu_k  # _c(n_up, lt); n_up > lt
             Pn = ((tl + 3.0) * cu_l2 * P[:m] + cl_l2 * M_next[:m]) / ((tl + 4.0) * cl_l1)
             Mn = (cu_l1 * Pn + (tl + 1.0) * cl_l1 * M[:m]) / ((tl + 2.0) * cu_l)
-            big = np.maximum(np.abs(Pn), np.abs(Mn))
-            big[big == 0] = 1.0
-            M_next = M[:m] / big
-            P = Pn / big
-            M = Mn / big
-            s = s[:m] + np.log(big)
+            if k % _RENORM_EVERY:
+                M_next, P, M = M[:m], Pn, Mn
+                s, e2s = s[:m], e2s[:m]
+            else:
+                big = np.maximum(np.abs(Pn), np.abs(Mn))
+                big[big == 0] = 1.0
+                M_next = M[:m] / big
+                P = Pn / big
+                M = Mn / big
+                s = s[:m] + np.log(big)
+                e2s = np.exp(2.0 * s)
         else:
             lp1 = lt + 1.0
-        e2s = np.exp(2.0 * s)
+            e2s = np.exp(2.0 * s)
         t_lo = term[idx_lo[:m] - k]
         # l = l' + 1
         sig = t_lo - term[idx_up[:m] - (k - 1)]
