@@ -251,12 +251,13 @@ def _se_coefficients(n, l, j, bethe=None):
         lambda n: 4.0 * _harmonic(n) + 28.0 / 3.0 * math.log(2.0) - 4.0 * np.log(n) - 601.0 / 180.0
         - 77.0 / (45.0 * n**2),
         n,
-    ) + np.where(p, (1.0 - 1.0 / n**2) * (2.0 / 15.0 + np.where(j == 0.5, 1.0 / 3.0, 0.0)), 0.0)
-    lm = np.maximum(l, 1.0)
+    ) + _where_only(p, lambda n, j: (1.0 - 1.0 / n**2) * (2.0 / 15.0 + np.where(j == 0.5, 1.0 / 3.0, 0.0)), n, j)
+    lm2 = 2.0 * np.maximum(l, 1.0)  # integer-valued: lm2 - 1 etc. equal 2 * lm - 1 etc. exactly
+    n2 = n * n
     A61 = A61 + np.where(
         l >= 1,
-        (96.0 * n**2 - 32.0 * l * (l + 1.0))
-        / (3.0 * n**2 * (2 * lm - 1) * (2 * lm) * (2 * lm + 1) * (2 * lm + 2) * (2 * lm + 3)),
+        (96.0 * n2 - 32.0 * l * (l + 1.0))
+        / (3.0 * n2 * (lm2 - 1.0) * lm2 * (lm2 + 1.0) * (lm2 + 2.0) * (lm2 + 3.0)),
         0.0,
     )
     return A41, A40, A40_mag, A50, A61, A62
