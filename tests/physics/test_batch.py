@@ -132,10 +132,6 @@ def test_changed_file_is_remeasured(tmp_path):
     assert abs(row["z"] - other[sorted(other)[0]]) < 2e-4
 
 
-@pytest.mark.filterwarnings("ignore::DeprecationWarning")
-@pytest.mark.filterwarnings("ignore::ResourceWarning")
-@pytest.mark.filterwarnings("ignore::UserWarning")
-@pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")
 def test_dask_cluster_matches(survey, reference, tmp_path):
     distributed = pytest.importorskip("distributed")
     d, _ = survey
