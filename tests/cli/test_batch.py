@@ -57,3 +57,17 @@ def test_missing_output(tmp_path, capsys):
         main(["batch", str(tmp_path)])
     assert exc.value.code == 2
     assert "-o/--output" in capsys.readouterr().err
+
+
+def test_scheduler_address(tmp_path, capsys):
+    distributed = pytest.importorskip("distributed")
+    truth = write_synthetic_spectra(tmp_path / "s", 3, seed=8)
+    out = tmp_path / "cat.ecsv"
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster:
+        code = main(["batch", str(tmp_path / "s" / "*.fits"), "-o", str(out),
+                     "--scheduler", cluster.scheduler_address])
+    assert code == 0, capsys.readouterr().err
+    table = Table.read(out, format="ascii.ecsv")
+    assert sorted(table["file"]) == sorted(truth)
+    assert max(abs(r["z"] - truth[r["file"]]) for r in table) < 2e-4
