@@ -14,6 +14,7 @@ so a velocity in another convention (radio, relativistic) is converted through `
 """
 
 import contextlib
+import dataclasses
 import functools
 import warnings
 
@@ -47,6 +48,7 @@ __all__ = [
     "velocity_correction",
     "convert_velocity",
     "convert_redshift",
+    "header_velocity_correction",
 ]
 
 FRAME_DESCRIPTIONS = {
@@ -90,6 +92,7 @@ class FrameAccuracyWarning(UserWarning):
     """astropy could compute a correction only with reduced accuracy (e.g. beyond the IERS table)."""
 
 
+@dataclasses.dataclass(frozen=True)
 class HeaderFrame:
     """Frame of rest read from a header.
 
@@ -103,20 +106,9 @@ class HeaderFrame:
         Keyword it came from (``"SPECSYS"``, ``"VELREF"``) or None.
     """
 
-    __slots__ = ("frame", "value", "keyword")
-
-    def __init__(self, frame, value, keyword):
-        self.frame = frame
-        self.value = value
-        self.keyword = keyword
-
-    def __repr__(self):
-        return f"HeaderFrame(frame={self.frame!r}, value={self.value!r}, keyword={self.keyword!r})"
-
-    def __eq__(self, other):
-        if not isinstance(other, HeaderFrame):
-            return NotImplemented
-        return (self.frame, self.value, self.keyword) == (other.frame, other.value, other.keyword)
+    frame: str | None
+    value: str | None
+    keyword: str | None
 
 
 @contextlib.contextmanager
@@ -257,10 +249,10 @@ def _header_location(header):
     return None, None
 
 
-def _header_target(header):
+def _header_target(header, notes):
     frame = str(header.get("RADESYS", header.get("RADECSYS", "ICRS"))).strip().lower()
-    options = {"icrs": {}, "fk5": {}, "fk4": {}}
-    if frame not in options:
+    if frame not in ("icrs", "fk5", "fk4"):
+        notes.append(f"RADESYS={frame.upper()!r} not handled; coordinates taken as ICRS")
         frame = "icrs"
     extra = {}
     if frame in ("fk5", "fk4") and "EQUINOX" in header:
@@ -313,7 +305,7 @@ def observation_from_header(header):
     notes = []
     time, time_src = _header_time(header, notes)
     location, loc_src = _header_location(header)
-    target, target_src = _header_target(header)
+    target, target_src = _header_target(header, notes)
     found = {"time": time, "location": location, "target": target}
     return {
         **found,
@@ -342,14 +334,19 @@ def _unit_vector(target):
     return np.array([np.cos(dec) * np.cos(ra), np.cos(dec) * np.sin(ra), np.sin(dec)])
 
 
-def _check_inputs(time, location, target, need, what):
+def _check_inputs(time, location, target, need, what, from_header=False):
+    def say(name, argument, keys):
+        if from_header:
+            return f"the header has no {name} ({keys})"
+        return f"no {name} ({argument}=None; in a FITS header: {keys})"
+
     missing = []
     if "time" in need and time is None:
-        missing.append(f"no observing time (time=None; in a FITS header: {_TIME_KEYS})")
+        missing.append(say("observing time", "time", _TIME_KEYS))
     if "location" in need and location is None:
-        missing.append(f"no observatory location (location=None; in a FITS header: {_LOCATION_KEYS})")
+        missing.append(say("observatory location", "location", _LOCATION_KEYS))
     if "target" in need and target is None:
-        missing.append(f"no target direction (target=None; in a FITS header: {_TARGET_KEYS})")
+        missing.append(say("target direction", "target", _TARGET_KEYS))
     if missing:
         raise FrameError(f"cannot convert {what}: " + "; ".join(missing))
     if time is not None and not isinstance(time, Time):
@@ -395,21 +392,21 @@ def _bary_to_lsrk(target):
     return 1.0 + float(_sun_velocity_lsrk() @ _unit_vector(target)) / _C_KMS
 
 
-def _factor(from_frame, to_frame, time, location, target):
+def _factor(from_frame, to_frame, time, location, target, from_header=False):
     frames = {from_frame, to_frame}
     what = f"{from_frame} -> {to_frame}"
     if from_frame == to_frame:
         return 1.0
     if frames == {"barycentric", "lsrk"}:
-        _check_inputs(time, location, target, ("target",), what)
+        _check_inputs(time, location, target, ("target",), what, from_header)
         f = _bary_to_lsrk(target)
         return f if to_frame == "lsrk" else 1.0 / f
     if "topocentric" in frames:
-        _check_inputs(time, location, target, ("time", "location", "target"), what)
+        _check_inputs(time, location, target, ("time", "location", "target"), what, from_header)
     else:
         # motion of the Sun about the barycentre needs the time; the site cancels (to ~1e-4 m/s),
         # so a site without rotational velocity (the north pole) stands in for it
-        _check_inputs(time, location, target, ("time", "target"), what)
+        _check_inputs(time, location, target, ("time", "target"), what, from_header)
         location = _POLE
     return _factor_from_topocentric(to_frame, time, location, target) / _factor_from_topocentric(
         from_frame, time, location, target
@@ -508,3 +505,45 @@ def convert_velocity(
     z = velocity_to_redshift(v, convention=convention)
     z_new = convert_redshift(z, from_frame, to_frame, time, location, target)
     return redshift_to_velocity(z_new, convention=convention).to(_KMS)
+
+
+def header_velocity_correction(header, to_frame, from_frame=None):
+    """Velocity correction for a spectrum from its own header.
+
+    Parameters
+    ----------
+    header : `~astropy.io.fits.Header` or mapping
+    to_frame : str
+        One of `FRAMES`.
+    from_frame : str or None
+        Frame of the spectral axis; None reads it from ``SPECSYS`` (or ``VELREF``).
+
+    Returns
+    -------
+    `~astropy.units.Quantity` ['speed'] in km / s
+        As for `velocity_correction`.
+
+    Raises
+    ------
+    FrameError
+        The header names no frame (or one zline does not handle), or lacks the time, site or
+        target this conversion needs; the message names the keywords looked for.
+    """
+    to_frame = _check_frame(to_frame, "to_frame")
+    if from_frame is None:
+        found = frame_from_header(header)
+        if found.frame is None:
+            if found.value is None:
+                raise FrameError(
+                    "the header has no SPECSYS (or VELREF) keyword, so the frame of its spectral "
+                    f"axis is unknown; pass from_frame= (one of {list(FRAMES)})"
+                )
+            raise FrameError(
+                f"the header's {found.keyword}={found.value!r} names a frame zline does not convert; "
+                f"handled: {', '.join(f'{k}={v!r}' for k, v in SPECSYS_FRAMES.items() if v)}"
+            )
+        from_frame = found.frame
+    from_frame = _check_frame(from_frame, "from_frame")
+    obs = observation_from_header(header)
+    factor = _factor(from_frame, to_frame, obs["time"], obs["location"], obs["target"], True)
+    return ((factor - 1.0) * _C_KMS) * _KMS

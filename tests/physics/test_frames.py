@@ -120,11 +120,15 @@ def test_heliocentric_close_to_barycentric():
     assert abs(d) < 0.02 * KMS
 
 
-def _header(**cards):
+def _cards(cards):
     hdu = fits.PrimaryHDU(np.zeros(5, dtype=np.float32))
-    for k, v in cards.items():
-        hdu.header[k.replace("_", "-") if k.startswith("OBSGEO") or k.startswith("DATE") or k.startswith("MJD") else k] = v
+    hdu.header.update(cards)
     return hdu
+
+
+def _header(**cards):
+    # keyword arguments spell '-' as '_' (OBSGEO_X -> OBSGEO-X, DATE_OBS -> DATE-OBS)
+    return _cards({k.replace("_", "-"): v for k, v in cards.items()})
 
 
 def _read(tmp_path, hdu):
@@ -236,3 +240,35 @@ def test_future_date_offline_rephrased():
     assert abs(v) < 31 * KMS
     assert len(caught) == 1 and issubclass(caught[0].category, F.FrameAccuracyWarning)
     assert "reduced accuracy" in str(caught[0].message)
+
+
+def test_header_velocity_correction(tmp_path):
+    x, y, z = (c.to_value(u.m) for c in SITE.geocentric)
+    full = {"OBSGEO-X": x, "OBSGEO-Y": y, "OBSGEO-Z": z, "DATE-OBS": "2024-05-10T06:00:00",
+            "RA": 210.3, "DEC": 12.5, "SPECSYS": "TOPOCENT"}
+    hdr = _read(tmp_path, _cards(full))
+    assert_quantity_allclose(F.header_velocity_correction(hdr, "lsrk"),
+                             F.velocity_correction("lsrk", WHEN, SITE, TARGET), atol=1 * u.mm / u.s)
+    # already barycentric: the site is not needed to reach LSRK
+    bary = {k: v for k, v in full.items() if not k.startswith("OBSGEO")} | {"SPECSYS": "BARYCENT"}
+    assert_quantity_allclose(F.header_velocity_correction(_read(tmp_path, _cards(bary)), "lsrk"),
+                             F.velocity_correction("lsrk", None, None, TARGET, "barycentric"),
+                             atol=1e-9 * KMS)
+    no_site = {k: v for k, v in full.items() if not k.startswith("OBSGEO")}
+    with pytest.raises(F.FrameError, match=r"cannot convert topocentric -> barycentric: the header has no "
+                                           r"observatory location \(OBSGEO-X/Y/Z.*SITELAT/SITELONG"):
+        F.header_velocity_correction(_read(tmp_path, _cards(no_site)), "barycentric")
+    with pytest.raises(F.FrameError, match=r"SPECSYS='GEOCENTR' names a frame zline does not convert"):
+        F.header_velocity_correction(_read(tmp_path, _cards(full | {"SPECSYS": "GEOCENTR"})), "lsrk")
+    no_frame = {k: v for k, v in full.items() if k != "SPECSYS"}
+    with pytest.raises(F.FrameError, match=r"no SPECSYS \(or VELREF\).*pass from_frame="):
+        F.header_velocity_correction(_read(tmp_path, _cards(no_frame)), "lsrk")
+    v = F.header_velocity_correction(_read(tmp_path, _cards(no_frame)), "lsrk", from_frame="topocentric")
+    assert_quantity_allclose(v, F.velocity_correction("lsrk", WHEN, SITE, TARGET), atol=1 * u.mm / u.s)
+
+
+def test_unhandled_radesys_noted(tmp_path):
+    obs = F.observation_from_header(_read(tmp_path, _cards({"RA": 210.3, "DEC": 12.5, "RADESYS": "GAPPT"})))
+    assert obs["target"] is not None and any("GAPPT" in n for n in obs["notes"])
+    obs = F.observation_from_header(_read(tmp_path, _cards({"DATE-OBS": "2024-05-10"})))
+    assert any("no time of day" in n for n in obs["notes"])
