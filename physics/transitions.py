@@ -22,6 +22,7 @@ shorter ones stay in vacuum (common practice); the table meta records this.
 
 import functools
 import math
+import warnings
 from fractions import Fraction
 
 import astropy.constants as const
@@ -172,7 +173,8 @@ def line_label(species, n_upper, n_lower, rest_vacuum_aa=None, j_upper=None):
     if lam > _UV_CUT_AA:
         from zline.physics import media  # noqa: PLC0415
 
-        lam = float(media.vacuum_to_air(lam * u.AA, "morton2000").to_value(u.AA))
+        # a name only (rounded air wavelength, the trade's habit): no range notice for infrared lines
+        lam = float(media._vac_to_air_angstrom(lam, "morton2000"))
     text = f"{lam:.0f}" if lam >= 1000 else f"{lam:.4g}"
     return f"{sp.name} {text}"
 
@@ -253,16 +255,17 @@ def _mean_term_table(sp, model, nmax):
     table = _LEVEL_TABLES.get(key)
     if table is not None and table.size >= size:
         _LEVEL_TABLES[key] = _LEVEL_TABLES.pop(key)  # most recently used last
-        if sp.rydberg:  # the notice a fresh computation would give (the table starts at n = 1)
-            levels._warn_rydberg(sp, np.array([1]))
         return table[:size]
     n = np.repeat(np.arange(1, nmax + 1), np.arange(1, nmax + 1))
     start = n * (n - 1) // 2
     l = np.arange(n.size) - start
     jlo = np.where(l > 0, l - 0.5, 0.5)
     jhi = l + 0.5
-    t_hi = np.asarray(levels.term_value_invcm(sp, n, l, jhi, model), dtype=float)
-    t_lo = np.asarray(levels.term_value_invcm(sp, n, l, jlo, model), dtype=float)
+    with warnings.catch_warnings():
+        # the table spans n = 1..nmax; the caller warns for the levels it actually uses
+        warnings.simplefilter("ignore", levels.HydrogenicApproximationWarning)
+        t_hi = np.asarray(levels.term_value_invcm(sp, n, l, jhi, model), dtype=float)
+        t_lo = np.asarray(levels.term_value_invcm(sp, n, l, jlo, model), dtype=float)
     w_lo = np.where(l > 0, 2.0 * l, 0.0)
     table = (w_lo * t_lo + (2.0 * l + 2.0) * t_hi) / (w_lo + 2.0 * l + 2.0)
     table.flags.writeable = False
@@ -275,6 +278,8 @@ def _mean_term_table(sp, model, nmax):
 
 def _multiplets(sp, model, n_up, n_lo):
     """sigma centroid [cm^-1], A [s^-1], f for multiplets n_up -> n_lo (arrays)."""
+    _, levels, _ = _lazy()
+    levels._warn_rydberg(sp, n_lo)  # the lowest level any of these lines uses
     nmax = int(max(n_up.max(), n_lo.max()))
     table = _mean_term_table(sp, model, nmax)
     # sum S sigma, S sigma^3, S sigma^4 over the components, one fused pass over all pairs

@@ -94,3 +94,19 @@ def test_bad_quantum_numbers():
         radial_dipole(3, 3, 2, 2)
     with pytest.raises(ValueError, match="n_lower < n_upper"):
         multiplet_sums([2], [2])
+
+
+def test_multiplet_moments_match_the_plain_sums():
+    """With term(n, l) = -n every component has sigma = n_up - n_lo, so the moments are Δn^k Σw."""
+    from zline.physics.radial import multiplet_moments, multiplet_sums
+
+    n_up = np.array([2, 3, 7, 40, 120, 300])
+    n_lo = np.array([1, 2, 5, 39, 110, 291])
+    nmax = int(n_up.max())
+    n = np.repeat(np.arange(1, nmax + 1), np.arange(1, nmax + 1))
+    m1, m3, m4 = multiplet_moments(n_up, n_lo, -n.astype(float))
+    total = multiplet_sums(n_up, n_lo)
+    dn = (n_up - n_lo).astype(float)
+    np.testing.assert_allclose(m1, dn * total, rtol=1e-12)
+    np.testing.assert_allclose(m3, dn**3 * total, rtol=1e-12)
+    np.testing.assert_allclose(m4, dn**4 * total, rtol=1e-12)

@@ -188,3 +188,30 @@ def test_radial_integral_quantity():
 def test_bad_arguments(kwargs, match):
     with pytest.raises((ValueError, TypeError), match=match):
         line_table("H I", **kwargs)
+
+
+# ---------------------------------------------------------------- Rydberg notice and table cache
+
+def test_rydberg_carrier_at_high_n_gives_no_low_n_notice():
+    from zline.physics.levels import HydrogenicApproximationWarning
+
+    # pytest turns warnings into errors: a notice here would fail the call
+    t = line_table("He I", lower=(90, 100), delta_n=1, unit=u.GHz)
+    assert len(t) == 11
+    with pytest.warns(HydrogenicApproximationWarning, match="got n min = 5"):
+        line_table("He I", lower=5, upper=6, unit=u.GHz)
+
+
+def test_cached_level_tables_give_identical_lines():
+    from zline.physics import transitions
+
+    transitions._LEVEL_TABLES.clear()
+    small_cold = line_table("C I", lower=(40, 45), delta_n=2, unit=u.GHz)
+    big = line_table("C I", lower=(40, 300), delta_n=2, unit=u.GHz)
+    small_warm = line_table("C I", lower=(40, 45), delta_n=2, unit=u.GHz)  # slices the big table
+    for col in ("rest", "f_osc", "A_ul"):
+        assert np.array_equal(np.asarray(small_cold[col]), np.asarray(small_warm[col]))
+    sel = big["n_lower"] <= 45
+    assert np.array_equal(np.asarray(big["rest"][sel]), np.asarray(small_cold["rest"]))
+    (table,) = [v for k, v in transitions._LEVEL_TABLES.items() if "C I" in k[0]]
+    assert not table.flags.writeable
