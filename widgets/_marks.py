@@ -12,6 +12,7 @@ import numpy as np
 __all__ = [
     "PALETTE",
     "marker_arrays",
+    "stagger_labels",
     "thin_labels",
     "transparent_png",
 ]
@@ -85,6 +86,57 @@ def thin_labels(pixels, strength, min_separation):
         taken.insert(k, p)
         show[i] = True
     return show
+
+
+def stagger_labels(pixels, strength, min_separation, rows=3, occupied=None):
+    """Spread labels over a few rows so that close neighbours stay readable.
+
+    Labels are placed strongest first, each in the first row (0 = top) where no label already
+    placed in that row is closer than ``min_separation`` pixels; a label that fits in no row is
+    hidden. With ``rows=1`` this is `thin_labels`.
+
+    Parameters
+    ----------
+    pixels : ndarray of float
+        Screen position of each label (NaN = not on screen).
+    strength : ndarray of float
+        Expected strength; larger is placed first.
+    min_separation : float
+        Smallest allowed distance between two labels of one row, in pixels.
+    rows : int
+        Number of rows available (>= 1).
+    occupied : sequence of array-like, optional
+        Pixels already taken in each row (row 0 first), e.g. by labels drawn in another mark.
+
+    Returns
+    -------
+    ndarray of int
+        Row of each label, -1 where it is hidden.
+    """
+    if isinstance(rows, bool) or not isinstance(rows, (int, np.integer)) or rows < 1:
+        raise ValueError(f"stagger_labels: 'rows' must be an integer >= 1; got {rows!r}")
+    pixels = np.asarray(pixels, dtype=float)
+    row_of = np.full(pixels.shape, -1, dtype=int)
+    order = np.lexsort((np.arange(pixels.size), -np.asarray(strength, dtype=float)))
+    taken = [[] for _ in range(int(rows))]
+    for r, used in enumerate(occupied or ()):
+        if r < len(taken):
+            used = np.asarray(used, dtype=float)
+            taken[r] = sorted(used[np.isfinite(used)].tolist())
+    for i in order:
+        p = pixels[i]
+        if not np.isfinite(p):
+            continue
+        for r, row in enumerate(taken):
+            k = bisect.bisect_left(row, p)
+            if k < len(row) and row[k] - p < min_separation:
+                continue
+            if k > 0 and p - row[k - 1] < min_separation:
+                continue
+            row.insert(k, p)
+            row_of[i] = r
+            break
+    return row_of
 
 
 def transparent_png(width=1, height=1):

@@ -23,7 +23,7 @@ with warnings.catch_warnings():
 from astropy.nddata import StdDevUncertainty
 from astropy.table import QTable
 
-from ._marks import PALETTE, marker_arrays, thin_labels, transparent_png
+from ._marks import PALETTE, marker_arrays, stagger_labels, transparent_png
 
 __all__ = ["LineIdentifier", "MODES"]
 
@@ -36,6 +36,11 @@ MODES = {
 _KMS = u.km / u.s
 _FALLBACK_CONVENTIONS = ("optical", "radio", "relativistic")
 _RECULL_TOLERANCE = 0.03     # re-thin labels when the on-screen line spacing changes by more than 3 %
+_FIG_HEIGHT = 440            # figure height in pixels
+_MARGIN = dict(top=20, bottom=45, left=70, right=20)
+_MARGIN_TOP_REST = 55        # top margin while the rest-frame axis is shown
+_CHAR_PX = 7.0               # rough width of one label character at 12 px, for the row pitch
+_SCAN_STEPS = 3              # steps of the scan progress bar
 
 
 def _physics(module):
@@ -103,7 +108,10 @@ class LineIdentifier(W.VBox):
     width : int
         Figure width in pixels (also the decimation resolution).
     label_spacing : float
-        Labels closer than this many pixels are thinned; the stronger line keeps its label.
+        Labels of one row closer than this many pixels are not allowed; close neighbours go to a
+        lower row, the strongest line keeps the top row, and what fits in no row is hidden.
+    label_rows : int
+        Number of label rows (heights) used for close neighbours.
 
     Attributes
     ----------
@@ -117,9 +125,11 @@ class LineIdentifier(W.VBox):
     velocity = T.Float(0.0, help="trial velocity on top of z, km/s")
     convention = T.Unicode("optical", help="velocity convention")
     mode = T.Unicode("pan/zoom", help=f"mouse mode of the plot, one of {sorted(MODES)}")
+    rest_axis = T.Bool(False, help="show a rest-frame axis (at the current z and velocity) on top")
 
     def __init__(self, spectrum, lines="galaxy-emission", z=0.0, velocity=0.0 * _KMS,
-                 convention="optical", medium=None, width=960, label_spacing=16.0, **kwargs):
+                 convention="optical", medium=None, width=960, label_spacing=16.0, label_rows=3,
+                 **kwargs):
         super().__init__(**kwargs)
         if not isinstance(velocity, u.Quantity) or not velocity.unit.is_equivalent(_KMS):
             raise u.UnitTypeError(f"LineIdentifier: 'velocity' must be a Quantity with a speed unit "
@@ -132,6 +142,13 @@ class LineIdentifier(W.VBox):
         self._width = int(width)
         self._plot_px = max(self._width - 90, 100)
         self._label_spacing = float(label_spacing)
+        if isinstance(label_rows, bool) or not isinstance(label_rows, (int, np.integer)) or label_rows < 1:
+            raise ValueError(f"LineIdentifier: 'label_rows' must be an integer >= 1; got {label_rows!r}")
+        self._label_rows = int(label_rows)
+        self._row = np.zeros(0, dtype=int)
+        self._locked_row = np.zeros(0, dtype=int)
+        self._scan_result = None
+        self._scan_kind = None
         self._entries = []
         self._groups = []
         self._solution = None
@@ -156,7 +173,8 @@ class LineIdentifier(W.VBox):
         self._ready = True
         self._sync_controls()
         self._apply_shift(force_labels=True)
-        self.children = [self._header, self.figure, self._controls_box, self._lock_box, self._status]
+        self.children = [self._header, self.figure, self._controls_box, self._lock_box, self._scan_box,
+                         self._export_box, self._status]
 
     # ------------------------------------------------------------------ building
     def _build_figure(self):
@@ -166,6 +184,9 @@ class LineIdentifier(W.VBox):
         self._xaxis = bq.Axis(scale=self._xs, label="", grid_lines="none")
         self._yaxis = bq.Axis(scale=self._ys, side="left", label="", grid_lines="none",
                               label_offset="50px")
+        self._rest_xs = bq.LinearScale()
+        self._rest_xaxis = bq.Axis(scale=self._rest_xs, side="top", label="", grid_lines="none",
+                                   label_offset="32px")
         self._band = bq.Lines(x=[0.0, 1.0], y=[[0.0, 0.0], [0.0, 0.0]], scales=sc, fill="between",
                               fill_colors=[PALETTE["band"]], fill_opacities=[0.35], colors=[PALETTE["band"]],
                               stroke_width=0, labels=["uncertainty"])
@@ -184,8 +205,8 @@ class LineIdentifier(W.VBox):
         self._panzoom = bq.interacts.PanZoom(scales={"x": [self._xs], "y": [self._ys]})
         self.figure = bq.Figure(
             marks=[], axes=[self._xaxis, self._yaxis], interaction=self._panzoom,
-            fig_margin=dict(top=20, bottom=45, left=70, right=20), animation_duration=0, padding_y=0,
-            layout=W.Layout(width=f"{self._width}px", height="440px"))
+            fig_margin=dict(_MARGIN), animation_duration=0, padding_y=0,
+            layout=W.Layout(width=f"{self._width}px", height=f"{_FIG_HEIGHT}px"))
         self.figure.add_class("zline-plot")
         self._xs.observe(self._on_view, names=["min", "max"])
         self._ys.observe(self._on_yview, names=["min", "max"])
@@ -214,15 +235,43 @@ class LineIdentifier(W.VBox):
                                  layout=W.Layout(width="300px"))
         self._save_button = W.Button(description="save")
         self._upload = W.FileUpload(accept=".fits,.fit,.fts", multiple=False, description="open FITS")
+        self._rest_toggle = W.Checkbox(value=False, description="rest-frame axis", indent=False,
+                                       layout=W.Layout(width="150px"))
+        self._rest_toggle.add_class("zline-rest-axis")
+        self._scan_min = W.FloatText(value=0.0, description="scan z from", step=0.1,
+                                     layout=W.Layout(width="200px"))
+        self._scan_max = W.FloatText(value=3.0, description="to", step=0.1, layout=W.Layout(width="150px"))
+        self._scan_button = W.Button(description="find candidates", tooltip="search the z range for "
+                                     "redshifts where the line set matches the spectrum")
+        self._scan_progress = W.IntProgress(value=0, min=0, max=_SCAN_STEPS, description="",
+                                            layout=W.Layout(width="120px"))
+        self._candidates = W.Select(options=[], rows=5, description="", layout=W.Layout(width="520px"))
+        self._candidates.add_class("zline-candidates")
+        self._export_format = W.Dropdown(options=[], description="table", layout=W.Layout(width="200px"))
+        self._export_path = W.Text(value="zline-lines.ecsv", description="file",
+                                   layout=W.Layout(width="300px"))
+        self._export_button = W.Button(description="write table")
         self._results = W.HTML(value="<i>No locked lines yet.</i>")
         self._results.add_class("zline-results")
         self._status = W.HTML()
         self._status.add_class("zline-status")
         self._controls_box = W.VBox([
             W.HBox([self._slider, self._fine, self._z_text]),
-            W.HBox([self._v_text, self._conv, self._set_menu]),
+            W.HBox([self._v_text, self._conv, self._set_menu, self._rest_toggle]),
             W.HBox([self._mode, self._jump, self._jump_button, self._full_button]),
         ])
+        self._scan_box = W.VBox([
+            W.HBox([self._scan_min, self._scan_max, self._scan_button, self._scan_progress]),
+            self._candidates,
+        ])
+        self._export_box = W.HBox([self._export_format, self._export_path, self._export_button])
+        try:
+            formats = list(_physics("tables").TABLE_FORMATS)
+        except (RuntimeError, AttributeError):
+            formats = []
+        self._export_format.options = formats
+        if "ecsv" in formats:
+            self._export_format.value = "ecsv"
         self._lock_box = W.VBox([
             W.HBox([self._solve_button, self._undo_button, self._save_path, self._save_button, self._upload]),
             self._results,
@@ -241,6 +290,11 @@ class LineIdentifier(W.VBox):
                                                if self._entries else self._say("Nothing to drop.")))
         self._save_button.on_click(self._guard(lambda _: self.save(self._save_path.value, overwrite=True)))
         self._upload.observe(self._guard(self._on_upload), names="value")
+        self._rest_toggle.observe(self._guard(self._on_rest_toggle), names="value")
+        self._scan_button.on_click(self._guard(lambda _: self.scan(self._scan_min.value, self._scan_max.value)))
+        self._candidates.observe(self._guard(self._on_candidate), names="value")
+        self._export_format.observe(self._guard(self._on_export_format), names="value")
+        self._export_button.on_click(self._guard(self._on_export_button))
 
     def _guard(self, handler):
         """Wrap a UI callback so that any error lands in the status area in plain words."""
@@ -459,6 +513,7 @@ class LineIdentifier(W.VBox):
             with g.label.hold_sync():
                 g.label.x = self._observed(g.rest, factor)
         self._cull_labels(factor, force=force_labels)
+        self._update_rest_axis()
 
     def _cull_labels(self, factor, force=False):
         span = (self._xs.max - self._xs.min) if self._xs.max is not None else 1.0
@@ -468,11 +523,66 @@ class LineIdentifier(W.VBox):
         self._cull_key = key
         observed = self._observed(self._rest, factor)
         pixels = (observed - self._xs.min) / span * self._plot_px
-        show = thin_labels(pixels, self._strength, self._label_spacing)
+        # a locked line is labelled by its lock; its predicted label would sit on top of it
+        margin = self._label_spacing
+        pixels = np.where((pixels >= -margin) & (pixels <= self._plot_px + margin), pixels, np.nan)
+        locked = {e.lock.label for e in self._entries}
+        if locked:
+            pixels = np.where([lab in locked for lab in self._labels], np.nan, pixels)
+        # locked labels first (strongest lines first), then the predicted ones around them
+        lpx = np.array([(e.lock.observed.to_value(self._xunit, equivalencies=u.spectral()) - self._xs.min)
+                        / span * self._plot_px for e in self._entries], dtype=float)
+        self._locked_row = stagger_labels(lpx, [e.strength for e in self._entries], self._label_spacing,
+                                          rows=self._label_rows)
+        occupied = [lpx[self._locked_row == r] for r in range(self._label_rows)]
+        self._row = stagger_labels(pixels, self._strength, self._label_spacing, rows=self._label_rows,
+                                   occupied=occupied)
+        text = [e.lock.label if r >= 0 else "" for e, r in zip(self._entries, self._locked_row)]
+        if list(self._locked_labels.text) != text:
+            self._locked_labels.text = text
         for g in self._groups:
-            text = [self._labels[i] if show[i] else "" for i in g.index]
+            text = [self._labels[i] if self._row[i] >= 0 else "" for i in g.index]
             if list(g.label.text) != text:
                 g.label.text = text
+        self._place_label_rows()
+
+    def _plot_height(self):
+        margin = self.figure.fig_margin
+        return max(_FIG_HEIGHT - margin["top"] - margin["bottom"], 50)
+
+    def _row_pitch_px(self):
+        """Vertical distance between label rows: the longest label, capped so all rows fit."""
+        longest = max((len(s) for s in self._labels), default=4)
+        return min(longest * _CHAR_PX + 8.0, 0.8 * self._plot_height() / self._label_rows)
+
+    def _place_label_rows(self):
+        """Put every label at the height of its row (rows hang down from the top of the plot)."""
+        if self._ys.min is None or self._ys.max is None or len(self._row) != len(self._rest):
+            return
+        top, bottom = float(self._ys.max), float(self._ys.min)
+        pitch = self._row_pitch_px() * (top - bottom) / self._plot_height()
+        y_all = top - np.maximum(self._row, 0) * pitch
+        y_locked = top - np.maximum(self._locked_row, 0) * pitch
+        if len(y_locked) == len(self._locked_labels.x) and not np.array_equal(
+                np.asarray(self._locked_labels.y, dtype=float), y_locked):
+            self._locked_labels.y = y_locked
+        for g in self._groups:
+            y = y_all[g.index]
+            if not np.array_equal(np.asarray(g.label.y, dtype=float), y):
+                g.label.y = y
+
+    def label_rows(self):
+        """Row (0 = top) of each line's label as drawn now, -1 where the label is hidden."""
+        return self._row.copy()
+
+    def locked_label_rows(self):
+        """Row (0 = top) of each lock's label as drawn now (order of `locks`), -1 where hidden."""
+        return self._locked_row.copy()
+
+    def label_pixels(self):
+        """Horizontal screen position (pixels from the left of the plot area) of each line's label."""
+        span = self._xs.max - self._xs.min
+        return (self._observed(self._rest, self._current_factor) - self._xs.min) / span * self._plot_px
 
     def observed_positions(self):
         """Predicted observed positions of every line of the set at the current z and velocity."""
@@ -484,9 +594,11 @@ class LineIdentifier(W.VBox):
             return
         self._redraw_spectrum()
         self._cull_labels(self._current_factor)
+        self._update_rest_axis()
 
     def _on_yview(self, change):
         self._sync_catcher()
+        self._place_label_rows()
 
     def _sync_catcher(self):
         if None in (self._xs.min, self._xs.max, self._ys.min, self._ys.max):
@@ -541,6 +653,207 @@ class LineIdentifier(W.VBox):
         if hits.size == 0:
             raise KeyError(f"no line labelled {line!r} in line set {self._set_name!r}")
         return int(hits[0])
+
+    # ------------------------------------------------------------------ rest-frame axis
+    def _on_rest_toggle(self, change):
+        if change["new"] != self.rest_axis:
+            self.rest_axis = bool(change["new"])
+
+    @T.observe("rest_axis")
+    def _on_rest_axis(self, change):
+        if self._rest_toggle.value != change["new"]:
+            self._rest_toggle.value = change["new"]
+        margin = dict(_MARGIN)
+        if change["new"]:
+            margin["top"] = _MARGIN_TOP_REST
+            self.figure.axes = [self._xaxis, self._yaxis, self._rest_xaxis]
+        else:
+            self.figure.axes = [self._xaxis, self._yaxis]
+        self.figure.fig_margin = margin
+        self._update_rest_axis()
+        self._place_label_rows()
+
+    def rest_range(self):
+        """Rest-frame span of the current view at the current z and velocity (Quantity, 2 values).
+
+        The observed view limits are divided (wavelength-like axes) or multiplied (frequency-like
+        axes) by `zline.physics.kinematics.shift_factor`.
+        """
+        factor = self._factor()
+        lo, hi = float(self._xs.min), float(self._xs.max)
+        limits = np.array([lo, hi]) / factor if self._is_length else np.array([lo, hi]) * factor
+        return limits * self._xunit
+
+    def _update_rest_axis(self):
+        if not self.rest_axis or self._xs.min is None or self._xs.max is None:
+            return
+        lo, hi = self.rest_range().value
+        with self._rest_xs.hold_trait_notifications():
+            if self._rest_xs.min != lo or self._rest_xs.max != hi:
+                self._rest_xs.min, self._rest_xs.max = float(lo), float(hi)
+        kind = self._xaxis.label.replace("observed ", "rest ", 1)
+        label = f"{kind} at z = {self.z:.5f}" + (f", v = {self.velocity:g} km/s" if self.velocity else "")
+        if self._rest_xaxis.label != label:
+            self._rest_xaxis.label = label
+
+    # ------------------------------------------------------------------ candidate scan
+    def scan(self, z_min=0.0, z_max=3.0, top=5, lines=None):
+        """Search the spectrum for redshifts where the line set matches, and list the candidates.
+
+        Uses `zline.physics.scan.scan_redshift`; a range within |z| <= 0.01 is searched as a
+        velocity with `zline.physics.scan.scan_velocity` in the widget's convention.
+
+        Parameters
+        ----------
+        z_min, z_max : float
+            Redshift range searched.
+        top : int
+            Number of candidates.
+        lines : str, optional
+            Line set of `zline.physics.catalog.LINE_SETS`; default the widget's own set (a custom
+            table cannot be scanned: name a set then).
+
+        Returns
+        -------
+        `zline.physics.scan.ScanResult`
+        """
+        for name, val in (("z_min", z_min), ("z_max", z_max)):
+            if isinstance(val, u.Quantity) or isinstance(val, bool) or not np.isscalar(val):
+                raise TypeError(f"scan: '{name}' must be a plain redshift number; got {val!r}")
+        name = lines if lines is not None else self._set_name
+        if name == "custom":
+            raise ValueError("scan: the widget shows a custom line table; pass lines=<one of "
+                             f"{sorted(_physics('catalog').LINE_SETS)}>")
+        scan_mod = _physics("scan")
+        bar = self._scan_progress
+        bar.bar_style = ""
+        bar.value = 1
+        velocity_scan = max(abs(z_min), abs(z_max)) <= 0.01
+        self._say(f"searching {'velocities' if velocity_scan else 'redshifts'} {z_min:g} <= z <= "
+                  f"{z_max:g} with line set {name!r} ...")
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                if velocity_scan:
+                    kinematics = _physics("kinematics")
+                    one = 1.0 * u.AA
+                    v_lo, v_hi = (kinematics.velocity_from((1.0 + z) * one, one, convention=self.convention)
+                                  for z in (z_min, z_max))
+                    result = scan_mod.scan_velocity(self.spectrum, lines=name, v_min=v_lo.to(_KMS),
+                                                    v_max=v_hi.to(_KMS), top=top, convention=self.convention)
+                else:
+                    result = scan_mod.scan_redshift(self.spectrum, lines=name, z_min=z_min, z_max=z_max,
+                                                    top=top)
+        except Exception:
+            bar.value, bar.bar_style = 0, "danger"
+            raise
+        bar.value = 2
+        self._scan_result = result
+        self._scan_kind = "velocity" if velocity_scan else "redshift"
+        options = []
+        for i, c in enumerate(result.candidates):
+            where = (f"v={c.velocity.to_value(_KMS):+.1f} km/s" if velocity_scan and c.velocity is not None
+                     else f"z={c.z:.5f}")
+            options.append((f"{i + 1}. {where}  score {c.score:.3g}  {c.n_matched} lines", i))
+        self._syncing = True
+        try:
+            self._candidates.options = options
+            self._candidates.value = None
+        finally:
+            self._syncing = False
+        bar.value, bar.bar_style = _SCAN_STEPS, "success"
+        if options:
+            self._say(f"{len(options)} candidate(s); click one to move the overlay there")
+        else:
+            self._say("no candidate found in that range", level="warning")
+        return result
+
+    @property
+    def candidates(self):
+        """Candidates of the last `scan` (`zline.physics.scan.Candidate`), best first."""
+        return tuple(self._scan_result.candidates) if self._scan_result is not None else ()
+
+    def jump_to(self, i):
+        """Move the overlay to candidate ``i`` (0 = best) of the last `scan`.
+
+        Returns
+        -------
+        `zline.physics.scan.Candidate`
+        """
+        cands = self.candidates
+        if not cands:
+            raise ValueError("jump_to: no candidates yet; run scan() first")
+        if isinstance(i, bool) or not isinstance(i, (int, np.integer)) or not 0 <= i < len(cands):
+            raise IndexError(f"jump_to: candidate index must be 0..{len(cands) - 1}; got {i!r}")
+        c = cands[int(i)]
+        with self.hold_trait_notifications():
+            if self._scan_kind == "velocity" and c.velocity is not None:
+                self.z, self.velocity = 0.0, float(c.velocity.to_value(_KMS))
+            else:
+                self.z, self.velocity = float(c.z), 0.0
+        self._syncing = True
+        try:
+            if self._candidates.value != int(i):
+                self._candidates.value = int(i)
+        finally:
+            self._syncing = False
+        lines = ", ".join(c.lines[:6]) + (" ..." if len(c.lines) > 6 else "")
+        self._say(f"candidate {int(i) + 1}: z = {c.z:.5f} (score {c.score:.3g}; {c.n_matched} line(s)"
+                  f"{': ' + lines if lines else ''})")
+        return c
+
+    def _on_candidate(self, change):
+        if self._syncing or change["new"] is None:
+            return
+        self.jump_to(int(change["new"]))
+
+    # ------------------------------------------------------------------ export
+    def export(self, path, format="ecsv", overwrite=False):
+        """Write the line table of the locks for a paper (`zline.physics.tables`).
+
+        Parameters
+        ----------
+        path : str or path-like
+            Target file.
+        format : str
+            One of `zline.physics.tables.TABLE_FORMATS` (ecsv, fits, csv, latex, aastex).
+        overwrite : bool
+            Replace an existing file; by default an existing file is left alone and
+            FileExistsError is raised (and shown in the status area).
+
+        Returns
+        -------
+        str
+            The path written.
+        """
+        tables = _physics("tables")
+        if format not in tables.TABLE_FORMATS:
+            raise ValueError(f"export: unknown format {format!r}; options: {sorted(tables.TABLE_FORMATS)}")
+        if not self._entries:
+            raise ValueError("export: lock at least one line first; the table has one row per lock")
+        target = os.fspath(path)
+        if os.path.exists(target) and not overwrite:
+            self._say(f"{target} exists already; nothing was written. Choose another file name "
+                      f"(or pass overwrite=True).", level="error")
+            raise FileExistsError(f"export: {target!r} exists; pass overwrite=True to replace it")
+        table = tables.line_table_for_paper(list(self.locks), solution=self._solution, spectrum=self.spectrum,
+                                            settings={"medium": self._medium, "convention": self.convention})
+        table.meta.setdefault("line_set", self._set_name)
+        written = tables.write_table(table, target, format=format, overwrite=overwrite)
+        self._say(f"wrote {len(table)} line(s) as {format} to {written}")
+        return written
+
+    def _on_export_format(self, change):
+        stem, ext = os.path.splitext(self._export_path.value)
+        new = {"latex": ".tex", "aastex": ".tex"}.get(change["new"], "." + str(change["new"]))
+        if ext.lower() in (".ecsv", ".fits", ".csv", ".tex"):
+            self._export_path.value = stem + new
+
+    def _on_export_button(self, _):
+        try:
+            self.export(self._export_path.value, format=self._export_format.value)
+        except FileExistsError:
+            pass    # export() already said so in plain words
 
     # ------------------------------------------------------------------ controls <-> traits
     def _sync_controls(self):
@@ -773,6 +1086,8 @@ class LineIdentifier(W.VBox):
             self._locked_labels.x = obs
             self._locked_labels.y = np.full(obs.size, self._y1)
             self._locked_labels.text = [e.lock.label for e in self._entries]
+        if self._ready:
+            self._cull_labels(self._current_factor, force=True)
 
     # ------------------------------------------------------------------ solving and tables
     def solve(self):

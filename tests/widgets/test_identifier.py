@@ -12,7 +12,7 @@ from ipywidgets.widgets.widget import _remove_buffers
 
 from zline.physics import kinematics
 from zline.widgets import LineIdentifier
-from zline.widgets._marks import marker_arrays, thin_labels
+from zline.widgets._marks import marker_arrays, stagger_labels, thin_labels
 
 # the invented scenario of conftest.spectrum: four lines at z = 0.1
 TRUE_Z = 0.1
@@ -363,3 +363,190 @@ def test_demo_notebook_runs_and_leaves_a_widget(tmp_path):
     assert [o["output_type"] for o in out] == ["execute_result"]
     assert "application/vnd.jupyter.widget-view+json" in out[0]["data"]
     assert (tmp_path / "demo-data" / "galaxy.fits").exists()
+
+
+# ------------------------------------------------------------------ label rows
+def test_stagger_puts_close_neighbours_in_lower_rows_and_keeps_the_strongest():
+    pixels = np.array([100.0, 105.0, 110.0, 112.0, np.nan, 300.0])
+    strength = np.array([0.2, 0.9, 0.5, 0.1, 1.0, 0.05])
+    rows = stagger_labels(pixels, strength, 14.0, rows=3)
+    assert rows[1] == 0                      # the strongest of the cluster keeps the top row
+    assert rows[4] == -1 and rows[5] == 0    # off screen hidden; a lone label stays on top
+    assert sorted(rows[[0, 2]].tolist()) == [1, 2] and rows[3] == -1     # fourth fits in no row
+    np.testing.assert_array_equal(stagger_labels(pixels, strength, 14.0, rows=1) >= 0,
+                                  thin_labels(pixels, strength, 14.0))
+    with pytest.raises(ValueError, match="rows"):
+        stagger_labels(pixels, strength, 14.0, rows=0)
+
+
+def test_visible_labels_of_one_row_keep_the_spacing(spectrum):
+    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.072, label_spacing=16.0)
+    for lo, hi in [(3600.0, 9800.0), (3900.0, 4500.0), (4000.0, 9000.0)]:
+        with w._xs.hold_trait_notifications():
+            w._xs.min, w._xs.max = lo, hi
+        w._cull_labels(w._current_factor, force=True)
+        rows, px = w.label_rows(), w.label_pixels()
+        shown = [(r, p) for r, p, g in zip(rows, px, range(len(rows))) if r >= 0]
+        assert len({r for r, _ in shown}) >= 2, "a crowded view must use more than one row"
+        for r in range(3):
+            row_px = np.sort([p for rr, p in shown if rr == r])
+            if row_px.size > 1:
+                assert np.diff(row_px).min() >= 16.0
+        # what the marks draw agrees: text only where a row was given, y lower for lower rows
+        for g in w._groups:
+            text = list(g.label.text)
+            y = np.asarray(g.label.y, float)
+            for k, i in enumerate(g.index):
+                assert (text[k] != "") == (rows[i] >= 0)
+                if rows[i] > 0:
+                    assert y[k] < w._ys.max
+                elif rows[i] == 0:
+                    assert y[k] == pytest.approx(w._ys.max)
+
+
+def test_a_locked_line_loses_its_predicted_label(w):
+    i = int(np.flatnonzero(w._labels == "L6565")[0])
+    assert w.label_rows()[i] >= 0
+    w.lock(near=REST[2] * (1 + TRUE_Z) * u.AA)
+    assert w.label_rows()[i] == -1
+    w.unlock("L6565")
+    assert w.label_rows()[i] >= 0
+
+
+# ------------------------------------------------------------------ rest-frame axis
+def test_rest_axis_follows_z_and_zoom(w):
+    assert w._rest_xaxis not in w.figure.axes
+    frontend_update(w._rest_toggle, value=True)
+    assert w.rest_axis and w._rest_xaxis in w.figure.axes and w._rest_xaxis.side == "top"
+    for z in (0.0995, 0.25):
+        w.z = z
+        factor = kinematics.shift_factor(z, 0 * u.km / u.s, "optical")
+        assert w._rest_xs.min == pytest.approx(w._xs.min / factor, rel=1e-12)
+        assert w._rest_xs.max == pytest.approx(w._xs.max / factor, rel=1e-12)
+    w._xs.min, w._xs.max = 5000.0, 5600.0                 # pan/zoom
+    assert w._rest_xs.min == pytest.approx(5000.0 / 1.25, rel=1e-12)
+    assert w._rest_xs.max == pytest.approx(5600.0 / 1.25, rel=1e-12)
+    assert "rest" in w._rest_xaxis.label
+    w.rest_axis = False
+    assert w._rest_xaxis not in w.figure.axes and not w._rest_toggle.value
+
+
+def test_rest_axis_multiplies_on_a_frequency_axis():
+    from astropy.table import QTable
+    from specutils import Spectrum
+    x = np.linspace(1.40e9, 1.43e9, 3000)
+    sp = Spectrum(spectral_axis=x * u.Hz, flux=np.ones(x.size) * u.Jy, meta={"zline": {"medium": "vacuum"}})
+    table = QTable({"label": ["L21"], "rest": [1.420405751e9] * u.Hz})
+    w = LineIdentifier(sp, lines=table, velocity=300 * u.km / u.s, convention="radio")
+    w.rest_axis = True
+    factor = kinematics.shift_factor(0.0, 300 * u.km / u.s, "radio")
+    assert w._rest_xs.min == pytest.approx(x[0] * factor, rel=1e-12)
+    assert w._rest_xs.max == pytest.approx(x[-1] * factor, rel=1e-12)
+
+
+# ------------------------------------------------------------------ candidate scan
+def test_scan_lists_candidates_and_a_click_jumps(spectrum):
+    from zline.physics import scan as scan_mod
+    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.0)
+    result = w.scan(z_min=0.0, z_max=1.0, top=4)
+    direct = scan_mod.scan_redshift(spectrum, lines="galaxy-emission", z_min=0.0, z_max=1.0, top=4)
+    assert [c.z for c in result.candidates] == pytest.approx([c.z for c in direct.candidates])
+    assert result.candidates[0].z == pytest.approx(TRUE_Z, abs=1e-3)
+    options = w._candidates.options
+    assert len(options) == len(result.candidates)
+    assert f"z={result.candidates[1].z:.5f}" in options[1][0] and "lines" in options[1][0]
+    assert w._scan_progress.value == w._scan_progress.max
+    frontend_update(w._candidates, index=1)                 # a click on the second candidate
+    assert w.z == pytest.approx(result.candidates[1].z)
+    c = w.jump_to(0)
+    assert w.z == pytest.approx(c.z) and w.velocity == 0.0 and w._candidates.value == 0
+    with pytest.raises(IndexError):
+        w.jump_to(len(result.candidates))
+
+
+def test_scan_button_and_plain_errors(spectrum, lines):
+    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.0)
+    w._scan_min.value, w._scan_max.value = 0.05, 0.2
+    w._scan_button.click()
+    assert w.candidates and w.candidates[0].z == pytest.approx(TRUE_Z, abs=1e-3)
+    w._scan_min.value, w._scan_max.value = 0.5, 0.2
+    w._scan_button.click()
+    assert "Problem" in w.status and "z_min" in w.status
+    custom = LineIdentifier(spectrum, lines=lines)
+    with pytest.raises(ValueError, match="custom"):
+        custom.scan()
+    with pytest.raises(ValueError, match="no candidates"):
+        custom.jump_to(0)
+
+
+def test_scan_near_zero_searches_velocity(spectrum):
+    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.0)
+    with mock.patch("zline.physics.scan.scan_velocity", wraps=__import__(
+            "zline.physics.scan", fromlist=["scan_velocity"]).scan_velocity) as spy:
+        try:
+            w.scan(z_min=-0.002, z_max=0.002, top=2)
+        except ValueError:
+            pass        # no line of the invented spectrum near z = 0 is allowed to be an error
+    (args, kwargs), = spy.call_args_list
+    expected = kinematics.velocity_from(1.002 * u.AA, 1 * u.AA, convention="optical")
+    assert_quantity_allclose(kwargs["v_max"], expected)
+    assert kwargs["convention"] == "optical"
+
+
+# ------------------------------------------------------------------ export
+def test_export_writes_every_format_and_never_overwrites(w, tmp_path):
+    from zline.physics import tables
+    w.lock(near=REST[2] * (1 + TRUE_Z) * u.AA)
+    w.lock(near=REST[1] * (1 + TRUE_Z) * u.AA)
+    z, z_err = w.solve()
+    path = w.export(tmp_path / "lines.ecsv")
+    back = tables.read_table(path, format="ecsv")
+    assert list(back["label"]) == ["L6565", "L5008"]
+    assert back.meta["z"] == pytest.approx(z) and back.meta["z_err"] == pytest.approx(z_err)
+    assert back.meta["medium"] == "vacuum"
+    assert_quantity_allclose(back["observed"], u.Quantity([lk.observed for lk in w.locks]))
+    before = (tmp_path / "lines.ecsv").read_bytes()
+    with pytest.raises(FileExistsError):
+        w.export(tmp_path / "lines.ecsv")
+    assert (tmp_path / "lines.ecsv").read_bytes() == before
+    assert "exists already" in w.status and "nothing was written" in w.status
+    for fmt, name in [("fits", "l.fits"), ("csv", "l.csv"), ("latex", "l.tex"), ("aastex", "a.tex")]:
+        w.export(tmp_path / name, format=fmt)
+        assert (tmp_path / name).stat().st_size > 0
+    assert "deluxetable" in (tmp_path / "a.tex").read_text()
+    with pytest.raises(ValueError, match="ecsv"):
+        w.export(tmp_path / "x.txt", format="txt")
+
+
+def test_export_button_shows_an_existing_file_in_plain_words(w, tmp_path):
+    w.lock(near=REST[2] * (1 + TRUE_Z) * u.AA)
+    target = tmp_path / "t.csv"
+    target.write_text("keep me")
+    w._export_format.value = "csv"
+    w._export_path.value = str(target)
+    w._export_button.click()
+    assert target.read_text() == "keep me"
+    assert "exists already" in w.status and "Traceback" not in w.status
+    w._export_format.value = "ecsv"
+    assert w._export_path.value.endswith("t.ecsv")
+    w._export_button.click()
+    assert (tmp_path / "t.ecsv").exists() and "wrote 1 line" in w.status
+
+
+def test_locked_and_predicted_labels_share_the_rows_without_crowding(spectrum):
+    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.1, label_spacing=16.0)
+    for rest in REST:                      # Hα and [N II] 6583 sit 3 px apart on the full view
+        w.lock(near=rest * (1 + TRUE_Z) * u.AA)
+    span = w._xs.max - w._xs.min
+    lpx = (u.Quantity([lk.observed for lk in w.locks]).to_value(u.AA) - w._xs.min) / span * w._plot_px
+    lrows = w.locked_label_rows()
+    assert (lrows >= 0).sum() >= 3 and len(set(lrows[lrows >= 0])) >= 2
+    rows, px = w.label_rows(), w.label_pixels()
+    for r in range(3):
+        row_px = np.sort(np.concatenate([px[rows == r], lpx[lrows == r]]))
+        if row_px.size > 1:
+            assert np.diff(row_px).min() >= 16.0
+    text = list(w._locked_labels.text)
+    assert [t != "" for t in text] == (lrows >= 0).tolist()
+    y = np.asarray(w._locked_labels.y, float)
+    assert np.all(y[lrows > 0] < w._ys.max) and np.allclose(y[lrows == 0], w._ys.max)
