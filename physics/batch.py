@@ -202,9 +202,7 @@ def _write_json_atomic(path, obj):
     fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=directory)
     try:
         with os.fdopen(fd, "w") as fh:
-            json.dump(obj, fh)
-            fh.flush()
-            os.fsync(fh.fileno())
+            json.dump(obj, fh)  # no fsync: after a power cut an empty record is re-measured
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
