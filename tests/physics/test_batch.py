@@ -159,3 +159,49 @@ def test_errors(tmp_path):
     # deduplicated: the same file named twice is one row
     assert expand_inputs([tmp_path / "a.fits", str(tmp_path / "*.fits"), tmp_path]) == \
         [str(tmp_path / "a.fits")]
+
+
+def test_noise_only_is_flagged(tmp_path):
+    from astropy.io import fits
+
+    rng = np.random.default_rng(17)  # invented pure-noise spectrum: no line to find
+    hdr = fits.Header({"CTYPE1": "WAVE", "CUNIT1": "Angstrom", "CRPIX1": 1.0, "CRVAL1": 3700.0,
+                       "CDELT1": 1.9})
+    fits.HDUList([fits.PrimaryHDU((1 + 0.15 * rng.normal(size=3000)).astype(np.float32), hdr),
+                  fits.ImageHDU(np.full(3000, 0.15, np.float32), name="ERR")]).writeto(
+                      tmp_path / "noise.fits")
+    write_synthetic_spectra(tmp_path, 1, seed=3)
+    table = measure_survey(tmp_path, tmp_path / "c.ecsv", workers=1)
+    flags = {os.path.basename(r["file"]): r["flags"] for r in table}
+    assert "low_snr" in flags["noise.fits"].split(",")
+    assert flags["syn_0000.fits"] == ""
+    row = table[list(table["file"]).index(str(tmp_path / "noise.fits"))]
+    ambiguous = row["score_2"] >= batch.AMBIGUOUS_RATIO * row["score"]
+    assert ("ambiguous" in row["flags"]) == ambiguous
+
+
+def test_corrupt_record_is_remeasured(tmp_path):
+    truth = write_synthetic_spectra(tmp_path / "s", 2, seed=9)
+    cat = tmp_path / "c.ecsv"
+    first = measure_survey(tmp_path / "s", cat, workers=1)
+    parts = parts_directory(cat)
+    victim = sorted(os.listdir(parts))[0]
+    open(os.path.join(parts, victim), "w").close()  # e.g. left empty by a power cut
+    again = measure_survey(tmp_path / "s", cat, workers=1)
+    _same(again, first)
+    assert json.load(open(os.path.join(parts, victim)))["file"] in truth
+
+
+def test_interrupt_with_process_pool(survey, reference, tmp_path):
+    d, _ = survey
+    cat = tmp_path / "cat.ecsv"
+
+    def stop(done, total):
+        if done >= 4:
+            raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        measure_survey(d, cat, workers=2, progress=stop)
+    n_first = len(os.listdir(parts_directory(cat)))
+    assert 4 <= n_first < N_GOOD + 2
+    _same(measure_survey(d, cat, workers=2), reference[1])
