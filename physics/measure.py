@@ -1,7 +1,8 @@
 """Measure a spectrum at a trial redshift: fit the expected lines, lock them, solve z or v.
 
 `measure_spectrum` predicts where each line of a set falls at the trial ``z``/``velocity``, fits
-every line inside the data with `~zline.physics.fitting.fit_line`, locks the detected ones
+every line inside the data with `~zline.physics.fitting.fit_line` (lines predicted closer than
+``blend`` together, as one blend with a shared shift and width), locks the detected ones
 (S/N >= 3, right sign, centre within ``tolerance`` of the prediction, not already claimed by a
 closer line), solves the shift with `~zline.physics.identify.solve_redshift` and gives the
 undetected lines 3-sigma flux upper limits.
@@ -18,10 +19,13 @@ from zline.physics.fitting import fit_line
 from zline.physics.identify import Lock, RedshiftSolution, solve_redshift
 from zline.physics.kinematics import CONVENTIONS, observed_position
 
-__all__ = ["Measurement", "measure_spectrum", "default_line_set"]
+__all__ = ["BLEND_DISTANCE", "Measurement", "measure_spectrum", "default_line_set"]
 
 _KMS = u.km / u.s
 _C_KMS = _c.to_value(_KMS)
+
+#: Default ``blend`` of `measure_spectrum`: lines predicted closer than this are fitted together.
+BLEND_DISTANCE = 500 * _KMS
 
 #: Physical type of the spectral axis -> default line set.
 DEFAULT_SETS = {"length": "galaxy-emission", "wavenumber": "galaxy-emission",
@@ -55,7 +59,8 @@ class Measurement:
     locks : list of `~zline.physics.identify.Lock`
         Detected lines.
     lines : list of dict
-        Every line fitted: ``label, species, rest, predicted, fit, detected, medium, reason``.
+        Every line fitted: ``label, species, rest, predicted, fit, detected, medium, reason,
+        blend`` (``blend``: labels of the lines fitted together with this one, empty if alone).
     line_set : str
         Name of the set used (or ``"custom"``).
     medium : str
@@ -116,6 +121,7 @@ class Measurement:
                 "detected": bool(r["detected"]),
                 "upper_limit": (None if r["detected"] else num(r["limit"].value)),
                 "note": r["reason"],
+                "blend": list(r.get("blend", [])),
             })
         flux_unit = self.lines[0]["fit"].flux.unit.to_string() if self.lines else None
         return {
@@ -130,15 +136,65 @@ class Measurement:
         }
 
 
-def _check_tolerance(tolerance):
+def _check_tolerance(tolerance, name="tolerance"):
     if not isinstance(tolerance, u.Quantity) or tolerance.unit.physical_type != "speed":
-        raise TypeError(f"measure_spectrum: 'tolerance' must be a velocity Quantity (km/s), "
+        raise TypeError(f"measure_spectrum: {name!r} must be a velocity Quantity (km/s), "
                         f"got {tolerance!r}")
-    return float(tolerance.to_value(_KMS))
+    value = float(tolerance.to_value(_KMS))
+    if not np.isfinite(value) or value < 0:
+        raise ValueError(f"measure_spectrum: {name!r} must be finite and >= 0 km/s, got "
+                         f"{tolerance!r}")
+    return value
+
+
+def _blend_groups(indices, predicted, blend_kms):
+    """Split line indices into chains whose neighbours are predicted < ``blend_kms`` apart."""
+    order = sorted(indices, key=lambda i: float(predicted[i].value))
+    groups = []
+    for i in order:
+        if groups:
+            prev = groups[-1][-1]
+            a, b = float(predicted[prev].value), float(predicted[i].value)
+            if _C_KMS * abs(b - a) / (0.5 * abs(a + b)) < blend_kms:
+                groups[-1].append(i)
+                continue
+        groups.append([i])
+    return groups
+
+
+def _fit_group(spectrum, group, labels, predicted, rest_all):
+    """Fit one line, or a blend with one shift and one velocity width; one LineFit per line."""
+    if len(group) == 1:
+        return [fit_line(spectrum, predicted[group[0]], label=labels[0])]
+    blend_fit = fit_line(spectrum, predicted[group[0]], label=labels[0], tie_width=True,
+                         components={lab: rest_all[i] for lab, i in zip(labels, group)})
+    return list(blend_fit.components)
+
+
+def _row(table, i, label, fit, predicted, rest_all, s_unit, kinds, tol, group, blend,
+         reason=None):
+    p = float(predicted[i].value)
+    offset = _C_KMS * (float(fit.center.to_value(s_unit)) - p) / p
+    if s_unit.physical_type in ("frequency", "energy", "wavenumber"):
+        offset = -offset
+    sign_ok = (fit.flux.value > 0) == (kinds[i] != "absorption")
+    row = {
+        "label": label,
+        "species": str(table["species"][i]) if "species" in table.colnames else "",
+        "rest": rest_all[i], "predicted": predicted[i], "fit": fit, "offset": offset,
+        "group": group, "blend": list(blend),
+        "candidate": bool(reason is None and fit.success and fit.detected and sign_ok
+                          and abs(offset) <= tol and np.isfinite(fit.center_err.value)
+                          and fit.center_err.value > 0),
+    }
+    if reason is not None:
+        row["reason"] = reason
+    return row
 
 
 def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", lines=None, *,
-                     tolerance=100 * _KMS, min_strength=0.0, solve_for=None):
+                     tolerance=100 * _KMS, min_strength=0.0, solve_for=None,
+                     blend=BLEND_DISTANCE):
     """Fit the expected lines of a spectrum at a trial shift and solve the redshift.
 
     Parameters
@@ -162,6 +218,12 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         Skip lines of the set with a smaller ``strength``.
     solve_for : {"z", "velocity"}, optional
         Primary result; default ``"velocity"`` when ``z == 0`` else ``"z"``.
+    blend : `~astropy.units.Quantity` ['speed']
+        Lines of the set predicted closer than this to a neighbour are fitted together as one
+        blend (`~zline.physics.fitting.fit_line` with ``components``: one shift, one velocity
+        width, a flux per line), so each gets its own centre, flux and errors.  The locks of a
+        blend share one fitted shift, so their centre errors are scaled by sqrt(number locked)
+        to give the blend the weight of one measurement.  ``0 km/s`` fits every line alone.
 
     Returns
     -------
@@ -179,6 +241,7 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         raise ValueError(f"measure_spectrum: unknown convention {convention!r}; options: "
                          f"{', '.join(sorted(CONVENTIONS))}")
     tol = _check_tolerance(tolerance)
+    blend_kms = _check_tolerance(blend, "blend")
     axis = u.Quantity(spectrum.spectral_axis)
     s_unit = axis.unit
     zmeta = spectrum.meta.get("zline", {}) if isinstance(getattr(spectrum, "meta", None), dict) \
@@ -211,44 +274,62 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
     lo, hi = np.nanmin(axis.value[good]), np.nanmax(axis.value[good])
     margin = 10 * float(np.median(np.abs(np.diff(axis.value[good]))))
 
-    rows = []
+    keep = []
     for i in range(len(table)):
         p = float(predicted[i].value)
         if not lo + margin < p < hi - margin:
             continue
         if "strength" in table.colnames and float(table["strength"][i]) < min_strength:
             continue
-        label = str(table["label"][i])
-        try:
-            fit = fit_line(spectrum, predicted[i], label=label)
-        except ValueError as exc:  # too few usable pixels, masked region ...
-            rows.append({"label": label, "error": str(exc)})
+        keep.append(i)
+    kinds = {i: str(table["kind"][i]) if "kind" in table.colnames else "emission" for i in keep}
+
+    rows = []
+    for group in _blend_groups(keep, predicted, blend_kms):
+        group, dropped = list(group), []
+        while True:
+            labels = [str(table["label"][i]) for i in group]
+            try:
+                fits = _fit_group(spectrum, group, labels, predicted, rest_all)
+            except ValueError as exc:  # too few usable pixels, masked region ...
+                fits = exc
+                break
+            wrong = [k for k, (i, fit) in enumerate(zip(group, fits))
+                     if (fit.flux.value > 0) == (kinds[i] == "absorption")]
+            if len(group) == 1 or not wrong:
+                break
+            # a component of the wrong sign is the blend fit trading flux between unresolved
+            # neighbours: leave it out (it keeps this fit's upper limit) and refit the rest
+            k = min(wrong, key=lambda k: abs(fits[k].snr))
+            dropped.append((group.pop(k), labels[k], fits[k], labels))
+        for i, label, fit, blend_labels in dropped:
+            rows.append(_row(table, i, label, fit, predicted, rest_all, s_unit, kinds, tol,
+                             group=i, blend=blend_labels,
+                             reason=f"wrong sign in the blend fit with {', '.join(blend_labels)}; "
+                                    f"refitted without it"))
+        if isinstance(fits, ValueError):
+            rows.extend({"label": lab, "error": str(fits)} for lab in labels)
             continue
-        kind = str(table["kind"][i]) if "kind" in table.colnames else "emission"
-        offset = _C_KMS * (float(fit.center.to_value(s_unit)) - p) / p
-        if s_unit.physical_type in ("frequency", "energy", "wavenumber"):
-            offset = -offset
-        sign_ok = (fit.flux.value > 0) == (kind != "absorption")
-        rows.append({
-            "label": label,
-            "species": str(table["species"][i]) if "species" in table.colnames else "",
-            "rest": rest_all[i], "predicted": predicted[i], "fit": fit, "offset": offset,
-            "candidate": bool(fit.success and fit.detected and sign_ok and abs(offset) <= tol
-                              and np.isfinite(fit.center_err.value)
-                              and fit.center_err.value > 0),
-        })
+        for i, label, fit in zip(group, labels, fits):
+            rows.append(_row(table, i, label, fit, predicted, rest_all, s_unit, kinds, tol,
+                             group=group[0], blend=labels if len(group) > 1 else []))
     rows = [r for r in rows if "error" not in r]
 
     # a feature claimed by several lines goes to the one predicted closest
+    # (components of one blend fit are already deblended from each other)
     taken = []
     for r in sorted((r for r in rows if r["candidate"]), key=lambda r: abs(r["offset"])):
         c = float(r["fit"].center.value)
         half = 0.5 * abs(float(r["fit"].fwhm.to_value(s_unit)))
-        if any(abs(c - t) < half for t in taken):
+        if any(abs(c - t) < half and g != r["group"] for t, g in taken):
             r["candidate"] = False
             r["reason"] = "feature claimed by a line predicted closer"
             continue
-        taken.append(c)
+        taken.append((c, r["group"]))
+    n_locked = {}
+    for r in rows:
+        if r["candidate"]:
+            n_locked[r["group"]] = n_locked.get(r["group"], 0) + 1
 
     locks, out = [], []
     for r in sorted(rows, key=lambda r: float(r["rest"].to_value(u.AA, u.spectral()))):
@@ -256,8 +337,16 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         detected = r["candidate"]
         reason = r.get("reason", "")
         if detected:
-            locks.append(Lock.from_fit(r["label"], r["rest"], fit, species=r["species"],
-                                       medium=medium))
+            lock = Lock.from_fit(r["label"], r["rest"], fit, species=r["species"],
+                                 medium=medium)
+            n_in = n_locked[r["group"]]
+            if n_in > 1:
+                # the components share one fitted shift: n locks of one blend carry the weight
+                # of one measurement, not n
+                lock.observed_err = lock.observed_err * np.sqrt(n_in)
+                lock.note = (f"blend of {', '.join(r['blend'])} (one shift); centre error "
+                             f"x sqrt({n_in})")
+            locks.append(lock)
         elif not reason:
             if not fit.success:
                 reason = "fit did not converge"
@@ -270,7 +359,8 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         limit = fit.upper_limit if fit.upper_limit is not None else 3.0 * fit.flux_err
         out.append({"label": r["label"], "species": r["species"], "rest": r["rest"],
                     "predicted": r["predicted"], "fit": fit, "detected": detected,
-                    "limit": limit, "medium": medium, "reason": reason})
+                    "limit": limit, "medium": medium, "reason": reason,
+                    "blend": r["blend"]})
 
     if locks:
         if solve_for is None:

@@ -106,3 +106,56 @@ def test_custom_line_table(demo):
     assert abs(m.z - DEMO_TRUTH["galaxy"]["z"]) < 2e-4
     with pytest.raises(ValueError, match="needs a 'rest' column"):
         measure_spectrum(demo["galaxy"], z=0.07, lines=QTable({"label": ["x"]}))
+
+
+def _flux_truth(label):
+    # the demo builds each galaxy emission line with flux = 120 * strength (physics/demo.py)
+    from zline.physics.catalog import line_set
+
+    full = line_set("galaxy-emission")
+    return 120.0 * float(full["strength"][full["label"] == label][0])
+
+
+def test_close_lines_fitted_as_one_blend(demo):
+    truth = DEMO_TRUTH["galaxy"]["z"]
+    m = measure_spectrum(demo["galaxy"], z=truth + 3e-4)  # trial 90 km/s off the truth
+    resid = dict(zip(m.solution.labels, m.solution.residuals.to_value(u.km / u.s)))
+    rows = {r["label"]: r for r in m.lines}
+    for label in ("[O II] 3726", "[O II] 3729"):
+        assert rows[label]["detected"], rows[label]["reason"]
+        assert abs(resid[label]) < 20
+        assert rows[label]["blend"] == ["[O II] 3726", "[O II] 3729"]
+    f1, f2 = rows["[O II] 3726"]["fit"], rows["[O II] 3729"]["fit"]
+    ratio = float(f1.flux / f2.flux)
+    ratio_err = ratio * np.hypot(float(f1.flux_err / f1.flux), float(f2.flux_err / f2.flux))
+    expected = _flux_truth("[O II] 3726") / _flux_truth("[O II] 3729")
+    assert abs(ratio - expected) < 3 * ratio_err
+    # the two components sit at their own centres, a rest-ratio apart (one shared shift)
+    assert_quantity_allclose(f2.center / f1.center,
+                             rows["[O II] 3729"]["rest"] / rows["[O II] 3726"]["rest"], rtol=1e-9)
+    # no feature is claimed twice: distinct centres for every detected line
+    centres = np.sort([r["fit"].center.to_value(u.AA) for r in m.lines if r["detected"]])
+    assert np.all(np.diff(centres) > 0.05)
+    # the blend's locks share one shift, so together they weigh as one measurement
+    locks = {lock.label: lock for lock in m.locks}
+    assert_quantity_allclose(locks["[O II] 3726"].observed_err,
+                             np.sqrt(2) * f1.center_err)
+    assert abs(m.z - truth) < 3 * m.z_err and abs(m.z - truth) < 2e-4
+
+
+def test_blend_off_fits_lines_alone(demo):
+    # blend=0: each line alone; the [O II] pair then lands on one shared centre, only one locks
+    m = measure_spectrum(demo["galaxy"], z=DEMO_TRUTH["galaxy"]["z"], blend=0 * u.km / u.s)
+    rows = {r["label"]: r for r in m.lines}
+    c1 = rows["[O II] 3726"]["fit"].center.to_value(u.AA)
+    c2 = rows["[O II] 3729"]["fit"].center.to_value(u.AA)
+    assert abs(c1 - c2) < 0.05
+    assert rows["[O II] 3726"]["blend"] == []
+    assert not (rows["[O II] 3726"]["detected"] and rows["[O II] 3729"]["detected"])
+
+
+def test_blend_argument_checked(demo):
+    with pytest.raises(TypeError, match="'blend' must be a velocity"):
+        measure_spectrum(demo["galaxy"], z=0.07, blend=500)
+    with pytest.raises(ValueError, match="'blend' must be finite and >= 0"):
+        measure_spectrum(demo["galaxy"], z=0.07, blend=-1 * u.km / u.s)
