@@ -162,13 +162,29 @@ def _blend_groups(indices, predicted, blend_kms):
     return groups
 
 
-def _fit_group(spectrum, group, labels, predicted, rest_all):
-    """Fit one line, or a blend with one shift and one velocity width; one LineFit per line."""
+def _fit_group(spectrum, group, labels, predicted, rest_all, strengths=None):
+    """Fit one line, or a blend with one shift and one velocity width; one LineFit per line.
+
+    With ``strengths`` the flux ratios are fixed to them (relative to the strongest line).
+    """
     if len(group) == 1:
         return [fit_line(spectrum, predicted[group[0]], label=labels[0])]
+    ties = None
+    if strengths is not None:
+        ref = int(np.argmax(strengths))
+        ties = {(k, ref): strengths[k] / strengths[ref] for k in range(len(group)) if k != ref}
     blend_fit = fit_line(spectrum, predicted[group[0]], label=labels[0], tie_width=True,
-                         components={lab: rest_all[i] for lab, i in zip(labels, group)})
+                         components={lab: rest_all[i] for lab, i in zip(labels, group)},
+                         tie_ratio=ties)
     return list(blend_fit.components)
+
+
+def _expected_strengths(table, group, kinds):
+    """Expected strengths of a blend's lines (all positive, one kind), else None."""
+    if "strength" not in table.colnames or len({kinds[i] for i in group}) != 1:
+        return None
+    s = np.array([float(table["strength"][i]) for i in group])
+    return s if np.all(np.isfinite(s) & (s > 0)) else None
 
 
 def _row(table, i, label, fit, predicted, rest_all, s_unit, kinds, tol, group, blend,
@@ -221,7 +237,10 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
     blend : `~astropy.units.Quantity` ['speed']
         Lines of the set predicted closer than this to a neighbour are fitted together as one
         blend (`~zline.physics.fitting.fit_line` with ``components``: one shift, one velocity
-        width, a flux per line), so each gets its own centre, flux and errors.  The locks of a
+        width, a flux per line), so each gets its own centre, flux and errors.  If that free fit
+        gives a component of the wrong sign (neighbours trading flux), the blend is refitted with
+        its flux ratios fixed to the set's ``strength`` (noted in ``reason``); failing that, the
+        wrong-sign lines are left out one by one.  The locks of a
         blend share one fitted shift, so their centre errors are scaled by sqrt(number locked)
         to give the blend the weight of one measurement.  ``0 km/s`` fits every line alone.
 
@@ -286,7 +305,7 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
 
     rows = []
     for group in _blend_groups(keep, predicted, blend_kms):
-        group, dropped = list(group), []
+        group, dropped, ratio_fixed = list(group), [], False
         while True:
             labels = [str(table["label"][i]) for i in group]
             try:
@@ -298,6 +317,17 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
                      if (fit.flux.value > 0) == (kinds[i] == "absorption")]
             if len(group) == 1 or not wrong:
                 break
+            strengths = _expected_strengths(table, group, kinds)
+            if not dropped and strengths is not None:
+                # unresolved neighbours trade flux: try the ratio the line set expects
+                try:
+                    tied = _fit_group(spectrum, group, labels, predicted, rest_all, strengths)
+                except ValueError:
+                    tied = None
+                if tied is not None and all((fit.flux.value > 0) == (kinds[i] != "absorption")
+                                            for i, fit in zip(group, tied)):
+                    fits, ratio_fixed = tied, True
+                    break
             # a component of the wrong sign is the blend fit trading flux between unresolved
             # neighbours: leave it out (it keeps this fit's upper limit) and refit the rest
             k = min(wrong, key=lambda k: abs(fits[k].snr))
@@ -313,6 +343,10 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         for i, label, fit in zip(group, labels, fits):
             rows.append(_row(table, i, label, fit, predicted, rest_all, s_unit, kinds, tol,
                              group=group[0], blend=labels if len(group) > 1 else []))
+            if ratio_fixed:
+                rows[-1]["note"] = (f"free fit of the blend {', '.join(labels)} gave a component "
+                                    f"of the wrong sign: flux ratios fixed to the line set's "
+                                    f"expected strengths")
     rows = [r for r in rows if "error" not in r]
 
     # a feature claimed by several lines goes to the one predicted closest
@@ -335,17 +369,20 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
     for r in sorted(rows, key=lambda r: float(r["rest"].to_value(u.AA, u.spectral()))):
         fit = r["fit"]
         detected = r["candidate"]
-        reason = r.get("reason", "")
+        reason = r.get("reason", "") or r.get("note", "")
         if detected:
             lock = Lock.from_fit(r["label"], r["rest"], fit, species=r["species"],
                                  medium=medium)
+            if r.get("note"):
+                lock.note = r["note"]
             n_in = n_locked[r["group"]]
             if n_in > 1:
                 # the components share one fitted shift: n locks of one blend carry the weight
                 # of one measurement, not n
                 lock.observed_err = lock.observed_err * np.sqrt(n_in)
-                lock.note = (f"blend of {', '.join(r['blend'])} (one shift); centre error "
-                             f"x sqrt({n_in})")
+                lock.note = "; ".join(filter(None, [
+                    r.get("note", ""), f"blend of {', '.join(r['blend'])} (one shift); centre "
+                    f"error x sqrt({n_in})"]))
             locks.append(lock)
         elif not reason:
             if not fit.success:

@@ -159,3 +159,19 @@ def test_blend_argument_checked(demo):
         measure_spectrum(demo["galaxy"], z=0.07, blend=500)
     with pytest.raises(ValueError, match="'blend' must be finite and >= 0"):
         measure_spectrum(demo["galaxy"], z=0.07, blend=-1 * u.km / u.s)
+
+
+def test_unresolved_blend_gets_expected_ratio(demo):
+    # He I 3889 and H8 are ~30 km/s apart: a free blend fit trades flux between them, so the
+    # ratio is fixed to the line set's strengths; both lines then lock at their own centres
+    m = measure_spectrum(demo["galaxy"], z=DEMO_TRUTH["galaxy"]["z"] + 3e-4)
+    rows = {r["label"]: r for r in m.lines}
+    resid = dict(zip(m.solution.labels, m.solution.residuals.to_value(u.km / u.s)))
+    he, h8 = rows["He I 3889"], rows["H8"]
+    assert he["detected"] and h8["detected"] and "fixed" in he["reason"]
+    assert abs(resid["He I 3889"]) < 20 and abs(resid["H8"]) < 20
+    expected = _flux_truth("He I 3889") / _flux_truth("H8")
+    assert float(he["fit"].flux / h8["fit"].flux) == pytest.approx(expected, rel=1e-6)
+    assert float(h8["fit"].center.to_value(u.AA) - he["fit"].center.to_value(u.AA)) > 0.3
+    d = m.to_dict()
+    assert {line["label"]: line["blend"] for line in d["lines"]}["H8"] == ["He I 3889", "H8"]
