@@ -908,6 +908,10 @@ class LineIdentifier(W.VBox):
     def _on_slider(self, change):
         if self._syncing:
             return
+        # the browser slider snaps a value set from here (an exact z, a solution, a candidate) to
+        # its step and sends that back; such an echo within half a step must not round z
+        if abs(change["new"] - self.z) <= 0.5 * self._slider.step * (1 + 1e-9):
+            return
         if change["new"] != self.z:
             self.z = float(change["new"])
 

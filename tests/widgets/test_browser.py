@@ -1,5 +1,6 @@
 """The galaxy notebook in a real JupyterLab + headless Chromium: the slider moves the predicted lines,
-a click in identify mode locks a line (checked in the kernel itself)."""
+a click in identify mode locks a line, the rest-frame axis shows, a picked scan candidate moves z
+(checked in the kernel itself)."""
 
 import re
 import shutil
@@ -108,6 +109,24 @@ def test_slider_moves_lines_and_click_locks(lab_server, page):
                         && /M\\s*[\\d.]/.test(g.querySelector('path.line').getAttribute('d') || ''))""",
         arg=FIG, timeout=60_000)
     assert int(kernel_eval(lab_server, "len(w.locks)")) >= 1
+
+    # the rest-frame axis appears on top when its box is ticked
+    page.locator(".zline-rest-axis input[type=checkbox]").check()
+    page.wait_for_function(
+        """(fig) => [...document.querySelectorAll(fig + ' svg text')]
+             .some(t => /^rest wavelength/.test(t.textContent || ''))""", arg=FIG, timeout=60_000)
+    assert kernel_eval(lab_server, "w.rest_axis") == "True"
+
+    # the candidate scan fills the list; picking an entry moves z there
+    page.locator("button", has_text=re.compile(r"^\s*find candidates\s*$")).click()
+    options = page.locator(".zline-candidates select option")
+    options.first.wait_for(state="attached", timeout=60_000)
+    assert "score" in options.first.inner_text()
+    page.locator(".zline-candidates select").select_option(index=0)
+    end = time.monotonic() + 60
+    while kernel_eval(lab_server, "abs(w.z - w.candidates[0].z) < 1e-12") != "True":
+        assert time.monotonic() < end, "picking a candidate never moved z in the kernel"
+        time.sleep(0.3)
     ARTIFACTS.mkdir(exist_ok=True)
     page.locator(FIG).scroll_into_view_if_needed()
     page.screenshot(path=str(ARTIFACTS / "widget.png"), full_page=True)

@@ -550,3 +550,11 @@ def test_locked_and_predicted_labels_share_the_rows_without_crowding(spectrum):
     assert [t != "" for t in text] == (lrows >= 0).tolist()
     y = np.asarray(w._locked_labels.y, float)
     assert np.all(y[lrows > 0] < w._ys.max) and np.allclose(y[lrows == 0], w._ys.max)
+
+
+def test_slider_echo_snapped_to_its_step_keeps_the_exact_z(w):
+    w.z = 0.0733994
+    frontend_update(w._slider, value=round(0.0733994, 3))      # what the browser slider sends back
+    assert w.z == 0.0733994
+    frontend_update(w._slider, value=0.075)                    # a real move of two steps
+    assert w.z == pytest.approx(0.075)
