@@ -386,7 +386,7 @@ def test_visible_labels_of_one_row_keep_the_spacing(spectrum):
             w._xs.min, w._xs.max = lo, hi
         w._cull_labels(w._current_factor, force=True)
         rows, px = w.label_rows(), w.label_pixels()
-        shown = [(r, p) for r, p, g in zip(rows, px, range(len(rows))) if r >= 0]
+        shown = [(r, p) for r, p in zip(rows, px) if r >= 0]
         assert len({r for r, _ in shown}) >= 2, "a crowded view must use more than one row"
         for r in range(3):
             row_px = np.sort([p for rr, p in shown if rr == r])
