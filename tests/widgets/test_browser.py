@@ -100,6 +100,15 @@ def test_slider_moves_lines_and_click_locks(lab_server, page):
     while kernel_eval(lab_server, "w.mode") != "'identify'":
         assert time.monotonic() < end, "identify mode never reached the kernel"
         time.sleep(0.3)
+    # the notebook's later cells lock lines from code: drop those locks so that only the click can
+    # make one, and the drawn locked mark must come from it
+    kernel_eval(lab_server, "[w.unlock(0) for _ in range(len(w.locks))]")
+    assert int(kernel_eval(lab_server, "len(w.locks)")) == 0
+    page.wait_for_function(
+        """(fig) => ![...document.querySelectorAll(fig + ' g.curve')]
+             .some(g => g.querySelector('text.curve_label')?.textContent === 'locked'
+                        && /M\\s*[\\d.]/.test(g.querySelector('path.line').getAttribute('d') || ''))""",
+        arg=FIG, timeout=60_000)
     point = page.evaluate(PICK_VERTEX, FIG)
     assert point is not None, "no predicted line inside the plot area"
     page.mouse.click(point["x"] + 2, point["y"])
