@@ -1302,3 +1302,67 @@ class LineIdentifier(W.VBox):
         w._show_results()
         w._say(f"restored {len(w._entries)} lock(s) from {os.fspath(path)}")
         return w
+
+    # ------------------------------------------------------------ survey catalogue round trip
+
+    @classmethod
+    def from_catalog(cls, catalog, row, lines=None, **kwargs):
+        """Open one spectrum of a ``zline batch`` catalogue at its catalogue redshift.
+
+        Parameters
+        ----------
+        catalog : str or path-like
+            ECSV catalogue written by ``zline batch`` / `zline.physics.batch.measure_survey`.
+        row : int or str
+            Row index, or the spectrum's file (absolute path or unique base name).
+        lines : str, optional
+            Line set; default: the one the batch used.
+        **kwargs
+            Passed to `LineIdentifier`.
+        """
+        batch = _physics("batch")
+        entry = batch.catalog_row(catalog, row)
+        z = entry.get("z_checked")
+        if z is None or not np.isfinite(z):
+            z = entry["z"]
+        if not np.isfinite(z):
+            z = 0.0  # a row without a candidate (e.g. a bad file): open at rest
+        if lines is None:
+            from astropy.table import Table  # noqa: PLC0415
+
+            meta = Table.read(os.fspath(catalog), format="ascii.ecsv").meta.get("zline_batch", {})
+            lines = meta.get("lines", "galaxy-emission")
+        w = cls(entry["file"], lines=lines, z=float(z), **kwargs)
+        w._catalog = (os.fspath(catalog), entry["file"])
+        w._say(f"opened row {entry['row']} of {os.path.basename(os.fspath(catalog))} at z = {z:.6f}")
+        return w
+
+    def write_to_catalog(self, catalog=None, who=None, note=""):
+        """Write this spectrum's solved redshift back to its survey catalogue row.
+
+        The catalogue's blind ``z`` is kept; the checked value, who and when go beside it (see
+        `zline.physics.batch.record_correction`).  Solve first (`solve`): without a solution the
+        current ``z`` of the overlay is written with no error.
+
+        Returns
+        -------
+        dict
+            The correction recorded.
+        """
+        opened = getattr(self, "_catalog", None)
+        if catalog is None and opened is None:
+            raise ValueError("write_to_catalog: this widget was not opened with from_catalog; "
+                             "pass catalog=<path of the ECSV catalogue>")
+        catalog = os.fspath(catalog) if catalog is not None else opened[0]
+        file = opened[1] if opened is not None else self._source_name
+        z, z_err = float(self.z), None
+        if self._solution is not None and np.isclose(float(self._solution.z), z, rtol=0, atol=1e-12):
+            z_err = float(self._solution.z_err)
+        batch = _physics("batch")
+        try:
+            done = batch.record_correction(catalog, file, z, z_err, who=who, note=note)
+        except (ValueError, KeyError, IndexError, OSError) as exc:
+            self._say(f"could not write to the catalogue: {exc}", level="error")
+            raise
+        self._say(f"wrote z = {z:.6f} to {os.path.basename(catalog)} (by {done['who']})")
+        return done
