@@ -20,7 +20,6 @@ import hashlib
 import json
 import os
 import sys
-import tempfile
 
 import numpy as np
 
@@ -202,16 +201,10 @@ def parts_directory(catalog):
 
 
 def _write_json_atomic(path, obj):
-    directory = os.path.dirname(path)
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=directory)
-    try:
-        with os.fdopen(fd, "w") as fh:
-            json.dump(obj, fh)  # no fsync: after a power cut an empty record is re-measured
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    from zline.physics._atomic import atomic_path  # noqa: PLC0415
+
+    with atomic_path(path, overwrite=True) as tmp, open(tmp, "w") as fh:
+        json.dump(obj, fh)  # no fsync: after a power cut an empty record is re-measured
 
 
 def _load_record(path):

@@ -28,6 +28,8 @@ import astropy.units as u
 import numpy as np
 from astropy.io import fits
 
+from zline.physics._atomic import atomic_path
+
 __all__ = ["DEMO_FILES", "DEMO_TRUTH", "write_demo_spectra", "demo_hdulist"]
 
 #: Demo name -> file name.
@@ -330,8 +332,10 @@ def write_demo_spectra(directory, overwrite=False, skip_existing=False):
             continue
         buf = io.BytesIO()
         demo_hdulist(name).writeto(buf, checksum=False)
-        tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-        tmp.write_bytes(buf.getvalue())
-        os.replace(tmp, path)
+        with atomic_path(path, overwrite=overwrite,
+                         exists_message=f"{path} already exists; pass overwrite=True to replace it "
+                                        "or skip_existing=True to keep it.") as tmp:
+            with open(tmp, "wb") as fh:
+                fh.write(buf.getvalue())
         written[name] = path
     return written

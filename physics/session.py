@@ -21,7 +21,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 from pathlib import Path
 
 import astropy.units as u
@@ -142,29 +141,12 @@ def save_session(path, state: dict, overwrite: bool = False) -> Path:
     if path.exists() and not overwrite:
         raise FileExistsError(f"save_session: {str(path)!r} exists; pass overwrite=True to "
                               f"replace it")
-    folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+    from zline.physics._atomic import atomic_path
+
+    exists = f"save_session: {str(path)!r} exists; pass overwrite=True to replace it"
+    with atomic_path(path, overwrite=overwrite, exists_message=exists, fsync=True) as tmp:
+        with open(tmp, "w", encoding="utf-8") as fh:
             fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        if overwrite:
-            os.replace(tmp, path)
-        else:
-            try:  # atomic "create only if absent"
-                os.link(tmp, path)
-            except FileExistsError:
-                raise FileExistsError(f"save_session: {str(path)!r} exists; pass "
-                                      f"overwrite=True to replace it") from None
-            except OSError:  # file systems without hard links
-                if path.exists():
-                    raise FileExistsError(f"save_session: {str(path)!r} exists; pass "
-                                          f"overwrite=True to replace it") from None
-                os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
     return path
 
 

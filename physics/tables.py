@@ -18,7 +18,6 @@ import hashlib
 import math
 import os
 import re
-import tempfile
 
 import astropy.units as u
 import numpy as np
@@ -462,7 +461,6 @@ def write_table(table, path, format="ecsv", overwrite=False):
     path = os.fspath(path)
     if os.path.exists(path) and not overwrite:
         raise FileExistsError(f"write_table: {path!r} exists; pass overwrite=True to replace it")
-    directory = os.path.dirname(os.path.abspath(path))
     kwargs = {}
     if format in ("latex", "aastex"):
         out, units = _latex_table(table, units_in_names=(format == "aastex"))
@@ -482,22 +480,18 @@ def write_table(table, path, format="ecsv", overwrite=False):
                               for k, v in _flat_meta(table.meta).items()})
     else:
         to_write = table
-    fd, tmp = tempfile.mkstemp(prefix=".zline-", suffix=".tmp", dir=directory)
-    os.close(fd)
-    try:
-        import warnings
+    import warnings
 
-        from astropy.io.fits.verify import VerifyWarning
+    from astropy.io.fits.verify import VerifyWarning
 
-        with warnings.catch_warnings():
-            # long meta keys become HIERARCH cards; astropy warns about each one
-            warnings.filterwarnings("ignore", category=VerifyWarning)
-            to_write.write(tmp, format=_ASTROPY_FORMAT[format], overwrite=True, **kwargs)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    from zline.physics._atomic import atomic_path
+
+    exists = f"write_table: {path!r} exists; pass overwrite=True to replace it"
+    with atomic_path(path, overwrite=overwrite, exists_message=exists) as tmp, \
+            warnings.catch_warnings():
+        # long meta keys become HIERARCH cards; astropy warns about each one
+        warnings.filterwarnings("ignore", category=VerifyWarning)
+        to_write.write(tmp, format=_ASTROPY_FORMAT[format], overwrite=True, **kwargs)
     return path
 
 

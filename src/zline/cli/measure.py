@@ -83,16 +83,14 @@ def _write_text(text, path):
         return
     if os.path.exists(path):
         raise CommandError(f"output file {path!r} exists; remove it or choose another name")
-    directory = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".zline-", suffix=".tmp", dir=directory)
+    from zline.physics._atomic import atomic_path
+
+    exists = f"output file {path!r} exists; remove it or choose another name"
     try:
-        with os.fdopen(fd, "w") as fh:
+        with atomic_path(path, overwrite=False, exists_message=exists) as tmp, open(tmp, "w") as fh:
             fh.write(text + "\n")
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    except FileExistsError as exc:
+        raise CommandError(str(exc)) from None
 
 
 def run(args):
