@@ -74,3 +74,23 @@ def test_fits_needs_output_and_writes(demo, tmp_path):
     assert main(["measure", str(demo["xray"]), "--z", "0.0179", "--format", "fits",
                  "-o", str(target)]) == 0
     assert QTable.read(target)["observed"].unit == "keV"
+
+
+def test_overwrite_and_blend_options(demo, tmp_path, capsys):
+    target = tmp_path / "lines.json"
+    target.write_text("my notes\n")
+    z = str(DEMO_TRUTH["galaxy"]["z"])
+    base = ["measure", str(demo["galaxy"]), "--z", z, "--format", "json", "-o", str(target)]
+    assert main(base) == 2
+    assert "--overwrite" in capsys.readouterr().err
+    assert target.read_text() == "my notes\n"  # refused: the user's file is untouched
+    assert main(base + ["--overwrite"]) == 0
+    joint = {d["label"]: d for d in json.loads(target.read_text())["lines"]}
+    # [O II] 3726/3729 fitted together (the default blend distance) ...
+    assert "[O II] 3729" in joint["[O II] 3726"]["blend"]
+    assert main(base + ["--overwrite", "--blend", "0"]) == 0
+    alone = {d["label"]: d for d in json.loads(target.read_text())["lines"]}
+    # ... and one by one with --blend 0
+    assert not alone["[O II] 3726"]["blend"]
+    assert main(["measure", str(demo["galaxy"]), "--z", z, "--blend", "-5"]) == 2
+    assert "--blend must be a velocity >= 0" in capsys.readouterr().err

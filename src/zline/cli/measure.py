@@ -45,6 +45,10 @@ def add_arguments(parser):
                         help="output format (default: text)")
     parser.add_argument("-o", "--output", default=None, metavar="OUT",
                         help="write to this file (required for fits); existing files are kept")
+    parser.add_argument("--overwrite", action="store_true",
+                        help="replace an existing OUT instead of refusing")
+    parser.add_argument("--blend", type=float, default=None, metavar="KM/S",
+                        help="fit lines predicted closer than this together (default 500; 0: one by one)")
 
 
 def _num(x, fmt):
@@ -77,17 +81,15 @@ def format_text(result):
     return "\n".join(out)
 
 
-def _write_text(text, path):
+def _write_text(text, path, overwrite=False):
     if path is None:
         print(text)
         return
-    if os.path.exists(path):
-        raise CommandError(f"output file {path!r} exists; remove it or choose another name")
     from zline.physics._atomic import atomic_path
 
-    exists = f"output file {path!r} exists; remove it or choose another name"
+    exists = f"output file {path!r} exists; remove it, choose another name or pass --overwrite"
     try:
-        with atomic_path(path, overwrite=False, exists_message=exists) as tmp, open(tmp, "w") as fh:
+        with atomic_path(path, overwrite=overwrite, exists_message=exists) as tmp, open(tmp, "w") as fh:
             fh.write(text + "\n")
     except FileExistsError as exc:
         raise CommandError(str(exc)) from None
@@ -104,23 +106,27 @@ def run(args):
         raise CommandError(f"--format {args.format!r} is not one of {list(FORMATS)}")
     if args.format in _BINARY and not args.output:
         raise CommandError(f"--format {args.format} is binary and needs -o OUT")
-    if args.output and os.path.exists(args.output):
-        raise CommandError(f"output file {args.output!r} exists; remove it or choose another name")
+    if args.output and os.path.exists(args.output) and not args.overwrite:
+        raise CommandError(f"output file {args.output!r} exists; remove it, choose another name "
+                           f"or pass --overwrite")
+    if args.blend is not None and not args.blend >= 0:
+        raise CommandError(f"--blend must be a velocity >= 0 km/s; got {args.blend}")
+    options = {} if args.blend is None else {"blend": args.blend * u.km / u.s}
     spectrum = read_spectrum(args.file, hdu=args.hdu)
     m = measure_spectrum(spectrum, z=args.z, velocity=args.velocity * u.km / u.s,
-                         convention=args.convention, lines=args.lines)
+                         convention=args.convention, lines=args.lines, **options)
     if not m.lines:
         raise CommandError(f"no line of set {m.line_set!r} falls inside the data of "
                            f"{args.file!r} at z={args.z}, v={args.velocity} km/s")
     result = m.to_dict()
     if args.format == "text":
-        _write_text(format_text(result), args.output)
+        _write_text(format_text(result), args.output, args.overwrite)
     elif args.format == "json":
-        _write_text(json.dumps(result, indent=2, ensure_ascii=False), args.output)
+        _write_text(json.dumps(result, indent=2, ensure_ascii=False), args.output, args.overwrite)
     else:
         table = m.table()
         if args.output:
-            write_table(table, args.output, format=args.format)
+            write_table(table, args.output, format=args.format, overwrite=args.overwrite)
         else:
             with tempfile.TemporaryDirectory() as tmpdir:
                 path = write_table(table, os.path.join(tmpdir, "table"), format=args.format)
