@@ -70,22 +70,7 @@ def thin_labels(pixels, strength, min_separation):
     ndarray of bool
         True where the label is shown.
     """
-    pixels = np.asarray(pixels, dtype=float)
-    show = np.zeros(pixels.shape, dtype=bool)
-    order = np.lexsort((np.arange(pixels.size), -np.asarray(strength, dtype=float)))
-    taken = []
-    for i in order:
-        p = pixels[i]
-        if not np.isfinite(p):
-            continue
-        k = bisect.bisect_left(taken, p)
-        if k < len(taken) and taken[k] - p < min_separation:
-            continue
-        if k > 0 and p - taken[k - 1] < min_separation:
-            continue
-        taken.insert(k, p)
-        show[i] = True
-    return show
+    return stagger_labels(pixels, strength, min_separation, rows=1) >= 0
 
 
 def stagger_labels(pixels, strength, min_separation, rows=3, occupied=None):
