@@ -69,6 +69,17 @@ def _observed(rest, name):
                              convention=truth["convention"])
 
 
+def _axis_header(ctype, cunit, crval, cdelt):
+    """A header holding a 1D spectral axis (FITS WCS Paper I keywords, reference pixel 1)."""
+    header = fits.Header()
+    header["CTYPE1"] = ctype
+    header["CUNIT1"] = cunit
+    header["CRPIX1"] = 1.0
+    header["CRVAL1"] = crval
+    header["CDELT1"] = cdelt
+    return header
+
+
 def _common_header(header, name, obj, kind):
     truth = DEMO_TRUTH[name]
     header["OBJECT"] = (obj, "invented object")
@@ -124,12 +135,7 @@ def _galaxy():
         model += flux / (np.sqrt(2 * np.pi) * sigma) * _gauss(lam, centre, sigma)
     err = np.sqrt(0.12**2 + 0.004 * model)
     flux = model + rng.normal(0.0, 1.0, npix) * err
-    hdr = fits.Header()
-    hdr["CTYPE1"] = ("WAVE", "vacuum wavelength")
-    hdr["CUNIT1"] = "Angstrom"
-    hdr["CRPIX1"] = 1.0
-    hdr["CRVAL1"] = crval
-    hdr["CDELT1"] = cdelt
+    hdr = _axis_header(("WAVE", "vacuum wavelength"), "Angstrom", crval, cdelt)
     hdr["BUNIT"] = "1e-17 erg / (s cm2 Angstrom)"
     hdr["SPECSYS"] = ("BARYCENT", "wavelengths are barycentric")
     for key, value in _OPTICAL_SITE.items():
@@ -171,12 +177,8 @@ def _nebula():
         model += flux / (np.sqrt(2 * np.pi) * sigma) * _gauss(air, centre, sigma)
     var = 0.05**2 + 0.002 * model
     flux = model + rng.normal(0.0, 1.0, npix) * np.sqrt(var)
-    hdr = fits.Header()
-    hdr["CTYPE1"] = ("AWAV-LOG", "air wavelength, logarithmic sampling")
-    hdr["CUNIT1"] = "Angstrom"
-    hdr["CRPIX1"] = 1.0
-    hdr["CRVAL1"] = crval
-    hdr["CDELT1"] = (crval * dln, "[Angstrom] log step: CRVAL1*dln(lambda)")
+    hdr = _axis_header(("AWAV-LOG", "air wavelength, logarithmic sampling"), "Angstrom", crval,
+                       (crval * dln, "[Angstrom] log step: CRVAL1*dln(lambda)"))
     hdr["BUNIT"] = "1e-16 erg / (s cm2 Angstrom)"
     hdr["SPECSYS"] = ("BARYCENT", "wavelengths are barycentric")
     for key, value in _OPTICAL_SITE.items():
@@ -208,12 +210,7 @@ def _radio():
         model = model + amp * float(row["strength"]) * _gauss(freq, centre, sigma)
     flux = model + rng.normal(0.0, 0.003, nchan)
     rest_h109 = lines["rest"][lines["label"] == "H109α"][0]
-    hdr = fits.Header()
-    hdr["CTYPE1"] = ("FREQ", "frequency")
-    hdr["CUNIT1"] = "Hz"
-    hdr["CRPIX1"] = 1.0
-    hdr["CRVAL1"] = crval
-    hdr["CDELT1"] = cdelt
+    hdr = _axis_header(("FREQ", "frequency"), "Hz", crval, cdelt)
     hdr["RESTFRQ"] = (float(rest_h109.to_value(u.Hz)), "[Hz] H109alpha rest frequency")
     hdr["SPECSYS"] = ("LSRK", "frequencies in the kinematic LSR frame")
     hdr["BUNIT"] = "K"
