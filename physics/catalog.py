@@ -21,7 +21,7 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
-__all__ = ["LINE_SETS", "line_set", "tabulated_lines"]
+__all__ = ["LINE_SETS", "line_set", "line_set_for_axis", "tabulated_lines"]
 
 #: Set name -> what it holds and its natural unit (used when ``unit=None``).
 LINE_SETS = {
@@ -286,3 +286,46 @@ def line_set(name, medium="vacuum", unit=None, air_formula="morton2000", model="
         if medium == "air" else None,
     )
     return table
+
+
+def line_set_for_axis(spectral_axis, default="galaxy-emission"):
+    """The line set that fits a spectral axis, and why.
+
+    A frequency axis holds radio recombination lines, an energy axis X-ray lines; a wavelength or
+    wavenumber axis keeps ``default``.
+
+    Parameters
+    ----------
+    spectral_axis : `~astropy.units.Quantity` or `~astropy.units.UnitBase` or str
+        The spectrum's spectral axis (or just its unit).
+    default : str
+        The set for wavelength and wavenumber axes.
+
+    Returns
+    -------
+    name : str
+        One of `LINE_SETS`.
+    reason : str or None
+        A sentence saying why the set differs from ``default`` (None when it does not).
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> line_set_for_axis(u.GHz)
+    ('radio', 'the spectral axis is in frequency (GHz): radio recombination lines')
+    >>> line_set_for_axis([1.0, 2.0] * u.keV)
+    ('xray', 'the spectral axis is in energy (keV): X-ray lines of hydrogen-like ions')
+    >>> line_set_for_axis(u.AA)
+    ('galaxy-emission', None)
+    """
+    unit = getattr(spectral_axis, "unit", None)
+    unit = u.Unit(spectral_axis if unit is None else unit)
+    if unit.is_equivalent(u.Hz):
+        return "radio", f"the spectral axis is in frequency ({unit}): radio recombination lines"
+    if unit.is_equivalent(u.eV):
+        return "xray", f"the spectral axis is in energy ({unit}): X-ray lines of hydrogen-like ions"
+    if default not in LINE_SETS:
+        raise ValueError(
+            f"Argument 'default' must be one of {', '.join(map(repr, LINE_SETS))}; got {default!r}."
+        )
+    return default, None
