@@ -14,6 +14,7 @@ import copy
 import io
 import math
 import os
+import re
 import warnings
 
 import numpy as np
@@ -23,7 +24,7 @@ from astropy.io import fits
 from astropy.nddata import InverseVariance, StdDevUncertainty, VarianceUncertainty
 
 __all__ = ["SpectrumFormatError", "read_spectrum", "spectrum_from_arrays", "describe_spectrum",
-           "MEDIA", "UNCERTAINTY_TYPES", "HEADER_FACTS"]
+           "MEDIA", "UNCERTAINTY_TYPES", "HEADER_FACTS", "MEDIUM_KEYWORDS"]
 
 #: Accepted values of ``medium=``.
 MEDIA = {"vacuum": "wavelengths measured in vacuum", "air": "wavelengths measured in standard air"}
@@ -38,6 +39,11 @@ HEADER_FACTS = ("OBJECT", "DATE-OBS", "MJD-OBS", "OBSGEO-X", "OBSGEO-Y", "OBSGEO
                 "INSTRUME", "RESTFRQ", "RESTFREQ", "RESTWAV")
 
 _C_SI = _c.to_value(u.m / u.s)
+
+#: Header keywords that state the medium of the wavelengths, and how their values read.
+MEDIUM_KEYWORDS = {"VACUUM": "T means vacuum, F means air",
+                   "AIRORVAC": "'air' or 'vac'",
+                   "VAC_AIR": "'air' or 'vac'"}
 
 # Column / extension names (lower case) and what they hold.
 _AXIS_COLUMNS = {
@@ -57,7 +63,7 @@ _ERR_COLUMNS = {
     "error_flux": "stdev", "ivar": "ivar", "inverse_variance": "ivar", "invvar": "ivar",
     "flux_ivar": "ivar", "var": "variance", "variance": "variance", "flux_var": "variance",
 }
-_MASK_COLUMNS = ("mask", "and_mask", "quality", "dq", "badpix", "flag", "flags", "or_mask")
+_MASK_COLUMNS = ("mask", "and_mask", "andmask", "quality", "dq", "badpix", "flag", "flags", "or_mask")
 _FLUX_EXTNAMES = ("FLUX", "SCI", "DATA", "SPECTRUM", "SPEC")
 _ERR_EXTNAMES = {
     "ERR": "stdev", "ERROR": "stdev", "SIGMA": "stdev", "STD": "stdev", "STDDEV": "stdev",
@@ -108,11 +114,16 @@ class _Ctx:
 # units
 
 
+#: Spellings of the Angstrom in survey headers that astropy does not parse ('1E-17 erg/cm^2/s/Ang').
+_ANGSTROM_SPELLINGS = re.compile(r"(?<![A-Za-z])(Ang|Angs|Angstroms|angstroms|ang)(?![A-Za-z])")
+
+
 def _parse_unit(text):
     """Parse a FITS unit string; return a Unit or None when it cannot be parsed."""
     text = str(text).strip()
     if not text:
         return None
+    text = _ANGSTROM_SPELLINGS.sub("Angstrom", text)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         for fmt in ("fits", None):
@@ -379,8 +390,47 @@ def _from_hdulist(hdul, ctx, opts):
         ctx.fail(f"is a {type(h).__name__}, not an image or a table; pass hdu= with one of "
                  f"{_hdu_list_text(hdul)}")
     header = h.header
+    if out["kind"] == "length":
+        _apply_medium_keywords(out, [(header, ctx.hdu)] + ([(hdul[0].header, "0 (primary)")]
+                                                          if index != 0 else []), ctx)
     facts = _header_facts(header, hdul[0].header)
     return _build(out, ctx, opts, header=header, facts=facts)
+
+
+def _medium_keyword(header):
+    """(medium, 'KEY = value') from the first medium keyword of ``header``, or (None, None)."""
+    for key in MEDIUM_KEYWORDS:
+        if key not in header:
+            continue
+        try:
+            value = header[key]
+        except Exception:  # an unparsable card says nothing
+            continue
+        if key == "VACUUM":
+            if isinstance(value, (bool, np.bool_)):
+                return ("vacuum" if value else "air"), f"VACUUM = {'T' if value else 'F'}"
+            continue
+        text = str(value).strip().lower()
+        if text.startswith("air"):
+            return "air", f"{key} = {value!r}"
+        if text.startswith("vac"):
+            return "vacuum", f"{key} = {value!r}"
+    return None, None
+
+
+def _apply_medium_keywords(out, headers, ctx):
+    """Take the medium from VACUUM/AIRORVAC-style keywords where the axis itself says nothing."""
+    for header, label in headers:
+        medium, card = _medium_keyword(header)
+        if medium is None:
+            continue
+        if out["medium"] is None:
+            out["medium"] = medium
+            ctx.notes.append(f"medium {medium} from {card} in HDU {label}")
+        elif out["medium"] != medium:
+            ctx.assume(f"{card} in HDU {label} contradicts the axis type, which says "
+                       f"{out['medium']}; the axis type is kept (pass medium= to choose)")
+        return
 
 
 def _header_facts(header, primary):
@@ -439,6 +489,10 @@ def _read_image(hdul, index, ctx, opts):
                  f"{data.size} were read; the file is probably truncated")
     shape = data.shape
     row, column = opts["row"], opts["column"]
+    if data.ndim == 2 and column is None:
+        rows = _row_roles(header, shape[0], ctx)
+        if rows is not None and (row is None or row % shape[0] == rows["flux"]):
+            return _read_row_image(hdul, index, data, rows, ctx, opts)
     axis = 1
     selector = (lambda a: a)
     if data.ndim == 1:
@@ -486,6 +540,76 @@ def _read_image(hdul, index, ctx, opts):
                 layout=extra.pop("layout"), extra=extra)
 
 
+#: Words that name the rows of a row-per-quantity 2D image -> what the row holds.
+_ROW_WORDS = {"flux": "flux", "inverse": "ivar", "ivar": "ivar", "invvar": "ivar",
+              "inverse_variance": "ivar", "error": "stdev", "err": "stdev", "sigma": "stdev",
+              "variance": "variance", "var": "variance", "wavelength": "wave", "wave": "wave",
+              "lambda": "wave", "andmask": "mask", "and_mask": "mask", "mask": "mask"}
+#: Header keywords that list the rows of such an image, one word per row.
+ROW_NAME_KEYWORDS = ("EXTEN0",)
+
+
+def _row_roles(header, nrow, ctx):
+    """{role: row index} of a 2D image whose rows are named in the header, or None."""
+    for key in ROW_NAME_KEYWORDS:
+        text = header.get(key)
+        if not isinstance(text, str):
+            continue
+        words = text.replace(",", " ").split()
+        if len(words) != nrow:
+            ctx.notes.append(f"{key} names {len(words)} rows but NAXIS2 = {nrow}; rows not used")
+            continue
+        roles = {}
+        for i, word in enumerate(words):
+            role = _ROW_WORDS.get(word.lower())
+            if role is not None and role not in roles:
+                roles[role] = i
+        if "flux" in roles:
+            roles["_key"] = key
+            roles["_words"] = words
+            return roles
+    return None
+
+
+def _read_row_image(hdul, index, data, rows, ctx, opts):
+    """A 2D image whose rows are flux, uncertainty, wavelength and mask of one spectrum."""
+    header = hdul[index].header
+    key, words = rows["_key"], rows["_words"]
+    flux = np.asarray(data[rows["flux"]], dtype=float)
+    n = flux.size
+    ctx.notes.append(f"2D image with one quantity per row ({key} = {' '.join(words)!r}): flux "
+                     f"from row {rows['flux']}")
+    unc = unc_kind = mask = None
+    for kind in ("ivar", "stdev", "variance"):
+        if kind in rows:
+            unc, unc_kind = np.asarray(data[rows[kind]], dtype=float), kind
+            ctx.notes.append(f"uncertainty ({kind}) from row {rows[kind]} ({words[rows[kind]]})")
+            break
+    if "mask" in rows:
+        mask = np.asarray(data[rows["mask"]]) != 0
+        ctx.notes.append(f"mask from row {rows['mask']} ({words[rows['mask']]}): nonzero is bad")
+    if "wave" in rows:
+        values = np.asarray(data[rows["wave"]], dtype=float)
+        cunit_text = str(header.get("CUNIT1", "")).strip()
+        cunit = _parse_unit(cunit_text) if cunit_text else None
+        unit = _length_unit(cunit, values, 1, ctx, opts)
+        axis_q, kind, medium, extra = values * unit, "length", None, dict(layout="image-rows")
+        ctx.notes.append(f"wavelengths from row {rows['wave']} ({words[rows['wave']]})")
+    else:
+        axis_q, kind, medium, extra = _image_axis(header, 1, n, ctx, opts)
+        extra["layout"] = "image-rows"
+    if unc is None or mask is None:
+        more_unc, more_kind, more_mask = _image_companions(
+            hdul, index, lambda a: a[rows["flux"]] if np.ndim(a) == 2 else a, flux.shape, ctx)
+        if unc is None:
+            unc, unc_kind = more_unc, more_kind
+        if mask is None:
+            mask = more_mask
+    return dict(axis=axis_q, kind=kind, medium=medium, flux=flux,
+                flux_unit_text=header.get("BUNIT"), flux_unit_key="BUNIT", unc=unc,
+                unc_kind=unc_kind, mask=mask, layout=extra.pop("layout"), extra=extra)
+
+
 def _image_axis(header, k, n, ctx, opts):
     """Spectral axis of FITS axis ``k`` with ``n`` pixels: (Quantity, kind, medium, extra)."""
     ctype = str(header.get(f"CTYPE{k}", "")).strip().upper()
@@ -502,6 +626,19 @@ def _image_axis(header, k, n, ctx, opts):
         ctx.fail(f"keyword CTYPE{k} = {ctype!r}: the axis is in pixels, not a spectral "
                  f"coordinate; expected WAVE, AWAV, FREQ, ENER, WAVN, VRAD or VOPT; pass arrays "
                  f"with a calibrated axis")
+    if crval is None and k == 1 and "COEFF0" in header and "COEFF1" in header:
+        # log10-linear dispersion of survey files: log10(lambda) = COEFF0 + COEFF1 * (p - 1)
+        c0, c1 = _float_key(header, "COEFF0", ctx), _float_key(header, "COEFF1", ctx)
+        if c1 == 0:
+            ctx.fail("keyword COEFF1 = 0: the wavelength would not change from pixel to pixel; "
+                     "expected the log10 step per pixel")
+        values = 10.0 ** (c0 + c1 * np.arange(n, dtype=float))
+        ctx.notes.append("COEFF0/COEFF1: log10 of the wavelength, linear in the pixel")
+        cunit_text = str(header.get("CUNIT1", "")).strip()
+        unit = _length_unit(_parse_unit(cunit_text) if cunit_text else None, values, k, ctx,
+                            opts, log10=True)
+        medium = {"AWAV": "air", "WAVE": "vacuum"}.get(base)
+        return values * unit, "length", medium, dict(layout="image-log10")
     if crval is None:
         ctx.fail(f"keyword CRVAL{k} is missing; expected a linear WCS (CRVAL{k}, CDELT{k} or "
                  f"CD{k}_{k}, CRPIX{k}, CTYPE{k}, CUNIT{k}) describing the spectral axis; pass "
@@ -836,18 +973,26 @@ def _read_table(hdul, index, ctx, opts):
     medium = None
     if kind == "length":
         cname = axis_col.name.lower()
-        airvac = str(h.header.get("AIRORVAC", hdul[0].header.get("AIRORVAC", ""))).lower()
-        if "air" in cname or airvac.startswith("air"):
+        if "air" in cname:
             medium = "air"
-        elif "vac" in cname or airvac.startswith("vac"):
+        elif "vac" in cname:
             medium = "vacuum"
     extra = {}
     if kind == "frequency":
         rest = _rest_frequency(h.header) or _rest_frequency(hdul[0].header)
         if rest is not None:
             extra["rest_value"] = rest
-    return dict(axis=q, kind=kind, medium=medium, flux=flux, flux_unit_text=unit_of(flux_col),
-                flux_unit_key=f"TUNIT of column {flux_col.name!r}", unc=unc, unc_kind=unc_kind,
+    funit_text, funit_key = unit_of(flux_col), f"TUNIT of column {flux_col.name!r}"
+    if not funit_text:  # survey files state the flux unit once, as BUNIT
+        for hdr, label in ((h.header, ctx.hdu), (hdul[0].header, "0 (primary)")):
+            text = hdr.get("BUNIT")
+            if isinstance(text, str) and text.strip():
+                funit_text, funit_key = text.strip(), f"BUNIT of HDU {label}"
+                ctx.notes.append(f"flux unit of column {flux_col.name!r} from BUNIT in HDU "
+                                 f"{label}")
+                break
+    return dict(axis=q, kind=kind, medium=medium, flux=flux, flux_unit_text=funit_text,
+                flux_unit_key=funit_key, unc=unc, unc_kind=unc_kind,
                 mask=mask, layout=layout, extra=extra)
 
 
