@@ -6,7 +6,7 @@ import sys
 import tempfile
 
 from zline.cli import CommandError
-from zline.cli._common import add_hdu_option
+from zline.cli._common import add_spectrum_options, read_spectrum_for
 
 __all__ = ["COMMAND", "HELP", "FORMATS", "add_arguments", "run", "format_text"]
 
@@ -40,7 +40,7 @@ def add_arguments(parser):
     parser.add_argument("--lines", default=None, choices=sorted(LINE_SETS), metavar="SET",
                         help="line set: " + ", ".join(sorted(LINE_SETS))
                         + " (default: by spectral axis)")
-    add_hdu_option(parser)
+    add_spectrum_options(parser)
     parser.add_argument("--format", default="text", choices=list(FORMATS),
                         help="output format (default: text)")
     parser.add_argument("-o", "--output", default=None, metavar="OUT",
@@ -99,7 +99,6 @@ def run(args):
     import astropy.units as u
 
     from zline.physics.measure import measure_spectrum
-    from zline.physics.spectra import read_spectrum
     from zline.physics.tables import write_table
 
     if args.format not in FORMATS:
@@ -112,7 +111,7 @@ def run(args):
     if args.blend is not None and not args.blend >= 0:
         raise CommandError(f"--blend must be a velocity >= 0 km/s; got {args.blend}")
     options = {} if args.blend is None else {"blend": args.blend * u.km / u.s}
-    spectrum = read_spectrum(args.file, hdu=args.hdu)
+    spectrum = read_spectrum_for(args, COMMAND)  # prints the reader's warnings
     m = measure_spectrum(spectrum, z=args.z, velocity=args.velocity * u.km / u.s,
                          convention=args.convention, lines=args.lines, **options)
     if not m.lines:

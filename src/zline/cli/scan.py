@@ -3,7 +3,7 @@
 import json
 
 from zline.cli import CommandError
-from zline.cli._common import add_hdu_option
+from zline.cli._common import add_spectrum_options, read_spectrum_for
 
 __all__ = ["COMMAND", "HELP", "FORMATS", "DEFAULT_SETS", "add_arguments", "run", "format_text",
            "default_line_set"]
@@ -22,7 +22,7 @@ def add_arguments(parser):
     from zline.physics.catalog import LINE_SETS
 
     parser.add_argument("file", metavar="FILE", help="FITS file (.fits or .fits.gz)")
-    add_hdu_option(parser)
+    add_spectrum_options(parser)
     parser.add_argument("--z-min", type=float, default=0.0, help="lowest redshift (default 0)")
     parser.add_argument("--z-max", type=float, default=3.0, help="highest redshift (default 3)")
     parser.add_argument("--lines", default=None, choices=sorted(LINE_SETS), metavar="SET",
@@ -56,7 +56,6 @@ def format_text(result):
 
 def run(args):
     from zline.physics.scan import scan_redshift
-    from zline.physics.spectra import read_spectrum
 
     if args.format not in FORMATS:
         raise CommandError(f"--format {args.format!r} is not one of {sorted(FORMATS)}")
@@ -64,7 +63,7 @@ def run(args):
         raise CommandError(f"--top must be a positive integer; got {args.top}")
     if not args.z_max > args.z_min or args.z_min <= -1:
         raise CommandError(f"need -1 < --z-min < --z-max; got {args.z_min}, {args.z_max}")
-    spectrum = read_spectrum(args.file, hdu=args.hdu)  # SpectrumFormatError is a ValueError
+    spectrum = read_spectrum_for(args, COMMAND)  # prints the reader's warnings
     lines = args.lines or default_line_set(spectrum)
     result = scan_redshift(spectrum, lines=lines, z_min=args.z_min, z_max=args.z_max,
                            top=args.top)
