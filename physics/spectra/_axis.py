@@ -105,6 +105,10 @@ def image_axis(header, k, n, ctx, opts):
         unit = length_unit(cunit, values, k, ctx, opts, log10=is_log10, header=header)
         return values * unit, kind, medium, dict(layout=layout, source=f"CRVAL{k}/{dkey}")
 
+    if algo == "TAB":
+        ctx.fail(f"keyword CTYPE{k} = {ctype!r}: a lookup-table axis (FITS WCS Paper III, -TAB) "
+                 f"is not read; expected a linear, -LOG or -F2W-like axis, or a table HDU with a "
+                 f"wavelength column; pass hdu= or arrays")
     if base not in SPECTRAL_TYPES:
         ctx.fail(f"keyword CTYPE{k} = {ctype!r} is not a spectral coordinate type this reader "
                  f"knows; expected one of {sorted(SPECTRAL_TYPES)} (FITS WCS Paper III) or "
@@ -244,9 +248,10 @@ def _wcs_axis(header, k, n, unit, ctx):
         w = WCS(sub, naxis=1)
         world = w.pixel_to_world_values(np.arange(n, dtype=float))
         wunit = u.Unit(w.wcs.cunit[0])
-    except Exception as exc:
+    except Exception:  # damaged data: said in plain words below
         ctx.fail(f"keyword CTYPE{k} = {header.get(f'CTYPE{k}')!r}: astropy.wcs could not evaluate "
-                 f"the axis ({type(exc).__name__}: {exc}); check the WCS keywords")
+                 f"the axis; check the WCS keywords of that algorithm (e.g. the lookup table "
+                 f"a -TAB axis needs); pass arrays if the axis is stored elsewhere")
     return (np.asarray(world, dtype=float) * wunit).to(unit, equivalencies=u.spectral())
 
 

@@ -190,8 +190,8 @@ def float_key(header, key, ctx, default=None):
         return default
     try:
         value = header[key]
-    except Exception as exc:  # astropy's VerifyError on an unparsable card
-        ctx.fail(f"keyword {key} has an unparsable value ({type(exc).__name__}); expected a "
+    except Exception:  # astropy's VerifyError on an unparsable card
+        ctx.fail(f"keyword {key} has an unparsable value; expected a "
                  f"finite number; fix the header card")
     if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
         ctx.fail(f"keyword {key} = {value!r} is not a number; expected a finite number; fix the "

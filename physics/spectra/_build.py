@@ -139,8 +139,9 @@ def build(out, ctx, opts, header=None, facts=None):
     try:
         return Spectrum(flux=flux_q, spectral_axis=axis, uncertainty=uncertainty, mask=mask,
                         meta=meta, **kwargs)
-    except Exception as exc:
-        ctx.fail(f"specutils refused the data ({type(exc).__name__}: {exc})")
+    except Exception:  # damaged data: said in plain words below
+        ctx.fail("specutils could not build a spectrum from the data read (axis, flux, "
+                 "uncertainty and mask); check the file's shapes and values")
 
 
 def decide_medium(kind, stated, override, ctx):

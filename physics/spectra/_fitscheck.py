@@ -37,6 +37,7 @@ class Structure:
         self.truncated = None
         self.truncated_text = ""
         self.nextend = None
+        self.cut_after = None  # (index, label) of an HDU whose 2880-byte padding is cut short
 
     def label(self, index):
         for i, _, name, _ in self.hdus:
@@ -103,7 +104,9 @@ def _read_header(stream):
     while True:
         block = stream.read(_BLOCK)
         nbytes += len(block)
-        if len(block) < _BLOCK:
+        if len(block) < _BLOCK:  # the file ends inside this header
+            if first is None and len(block) >= 8:
+                first = block[:8].decode("ascii", errors="replace").strip().upper()
             return cards, first, nbytes, False
         for j in range(0, _BLOCK, _CARD):
             card = block[j:j + _CARD].decode("ascii", errors="replace")
@@ -188,6 +191,8 @@ def _walk(stream, size, ctx):
             st.truncated_text = (f"the file ends inside the data of HDU {label} ({size - pos} of "
                                  f"{nbytes_data} bytes present)")
             break
+        if pos + padded > size:  # data complete, its padding cut: the file was cut here
+            st.cut_after = (index, label)
         pos += padded
         stream.seek(min(pos, size))
         index += 1

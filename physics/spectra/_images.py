@@ -21,8 +21,9 @@ def image_data(hdul, index, ctx):
     header = h.header
     try:
         data = np.asarray(h.data)
-    except Exception as exc:
-        ctx.fail(f"image data could not be read ({type(exc).__name__}: {exc}); the file may be "
+    except Exception:  # damaged data: said in plain words below
+        ctx.fail(f"image data could not be read (BITPIX = {header.get('BITPIX')}, NAXISn, "
+                 f"BSCALE/BZERO); the file may be "
                  f"truncated")
     if not np.issubdtype(data.dtype, np.number):
         ctx.fail(f"image data of type {data.dtype} is not numeric")

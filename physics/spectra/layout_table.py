@@ -41,8 +41,9 @@ def claims(hdul, index, opts):
 def _column_values(data, name, ctx, row, nrows):
     try:
         col = np.asarray(data[name])
-    except Exception as exc:
-        ctx.fail(f"column {name!r} could not be read ({type(exc).__name__}: {exc})")
+    except Exception:  # damaged data: said in plain words below
+        ctx.fail(f"column {name!r} could not be read; check its TFORMn, TSCALn and TZEROn "
+                 f"keywords (the table may be truncated)")
     if col.dtype.kind in "SUO":
         ctx.fail(f"column {name!r} holds text ({col.dtype}); expected numbers")
     if col.dtype.kind == "b":
