@@ -62,7 +62,7 @@ def _value(card):
                 break
             out.append(field[i])
             i += 1
-        return "'" + "".join(out).rstrip()
+        return "'" + "".join(out).rstrip() + "'"
     return field.split("/", 1)[0].strip()
 
 
@@ -133,7 +133,7 @@ def _table_checks(cards, ctx, label, naxis1, binary):
             if f"TBCOL{n}" not in cards:
                 ctx.fail(f"HDU {label}: TFIELDS = {tfields} but TBCOL{n} is missing")
             continue
-        form = str(cards[key]).lstrip("'")
+        form = str(cards[key]).strip("'")
         m = _TFORM.match(form)
         if m is None:
             ctx.fail(f"HDU {label}: keyword {key} = '{form}' is not a binary-table format; "
@@ -151,7 +151,7 @@ def _walk(stream, size, ctx):
     pos, index = 0, 0
     while pos < size:
         cards, first, nbytes, complete = _read_header(stream)
-        name = str(cards.get("EXTNAME") or "").lstrip("'").strip() or None
+        name = str(cards.get("EXTNAME") or "").strip("'").strip() or None
         label = f"{index} ({name})" if name else f"{index}"
         if not complete:
             if index == 0:
@@ -171,7 +171,7 @@ def _walk(stream, size, ctx):
             ctx.fail(f"HDU {label}: keyword BITPIX = {bitpix} is not one of {list(_BITPIX)}")
         naxis = _as_int(cards, "NAXIS", ctx, label, 0, 999)
         dims = [_as_int(cards, f"NAXIS{n}", ctx, label, 0) for n in range(1, naxis + 1)]
-        xtension = str(cards.get("XTENSION") or "").lstrip("'").strip().upper()
+        xtension = str(cards.get("XTENSION") or "").strip("'").strip().upper()
         pcount = _as_int(cards, "PCOUNT", ctx, label, 0, default=0 if index == 0 else None)
         gcount = _as_int(cards, "GCOUNT", ctx, label, 0, default=1 if index == 0 else None)
         for key in ("BSCALE", "BZERO"):

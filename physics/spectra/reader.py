@@ -151,7 +151,10 @@ def _open_and_read(target, ctx, opts):
     structure, target = check_structure(target, ctx)
     try:
         hdul = fits.open(target, memmap=False, lazy_load_hdus=False)
-    except Exception:
+    except Exception:  # astropy's own reasons are not shown: said in plain words
+        if structure.truncated is not None:
+            ctx.fail(f"{structure.truncated_text}; expected a complete FITS file (check the "
+                     f"download or copy, or the NAXISn keywords)")
         ctx.fail("is not a readable FITS file; expected a FITS file (.fits or .fits.gz) starting "
                  "with SIMPLE = T; check that it is complete")
     with hdul:
@@ -161,6 +164,7 @@ def _open_and_read(target, ctx, opts):
 
 
 def _from_hdulist(hdul, ctx, opts):
+    hdul = _complete_hdus(hdul, ctx, opts["hdu"])
     index = select_hdu(hdul, ctx, opts["hdu"])
     h = hdul[index]
     _check_complete(hdul, index, ctx)
@@ -172,6 +176,24 @@ def _from_hdulist(hdul, ctx, opts):
     facts = header_facts(header, hdul[0].header)
     return build(out, ctx, opts, header=header, facts=facts)
 
+
+
+def _complete_hdus(hdul, ctx, want):
+    """The HDUs before the first incomplete one (no data of an incomplete HDU is touched)."""
+    st = ctx.structure
+    if st is None or st.truncated is None or st.truncated >= len(hdul):
+        return hdul
+    names = [h.name.upper() for h in hdul]
+    index = None
+    if isinstance(want, (int, np.integer)) and not isinstance(want, bool) and want < len(hdul):
+        index = int(want) % len(hdul)
+    elif isinstance(want, str) and want.upper() in names:
+        index = names.index(want.upper())
+    if st.truncated == 0 or (index is not None and index >= st.truncated):
+        ctx.hdu = st.label(index if index is not None else 0)
+        ctx.fail(f"{st.truncated_text}; the spectrum's own HDU is incomplete; expected a "
+                 f"complete file (check the download or copy)")
+    return fits.HDUList(list(hdul)[:st.truncated])
 
 
 def _check_complete(hdul, index, ctx):
