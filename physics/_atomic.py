@@ -19,6 +19,7 @@ import contextlib
 import hashlib
 import json
 import os
+import re
 import tempfile
 
 __all__ = ["atomic_path", "file_sha256", "zline_kind", "describe_file", "NotZlineFileError", "KINDS",
@@ -45,6 +46,7 @@ LATEX_MARKER = "% zline line table"
 CSV_HEADER = "label,species,rest,observed,observed_err,"
 
 _HEAD = 1 << 16  # bytes read to recognise a text file
+_RECORD_NAME = re.compile(r"[0-9a-f]{32}\.json")
 _JSON_MAX = 64 << 20  # larger JSON files are not read whole
 
 
@@ -147,6 +149,9 @@ def zline_kind(path):
     path = os.fspath(path)
     if not os.path.isfile(path):
         return None
+    if _RECORD_NAME.fullmatch(os.path.basename(path)) \
+            and os.path.dirname(os.path.abspath(path)).endswith(".parts"):
+        return "batch-record"  # named by its key in a folder only zline writes (even if damaged)
     head = _head(path)
     stripped = head.lstrip()
     if head.startswith(b"SIMPLE  ="):
