@@ -67,6 +67,8 @@ class Measurement:
         Medium of the rest positions.
     spectrum : `specutils.Spectrum`
         The measured spectrum.
+    level_model : str or None
+        Level model of the set's computed hydrogen-like positions (None if not known).
     """
 
     z: float
@@ -80,6 +82,7 @@ class Measurement:
     line_set: str
     medium: str
     spectrum: object = field(default=None, repr=False)
+    level_model: str | None = None
 
     def table(self, settings=None):
         """Paper table of all lines (`zline.physics.tables.line_table_for_paper`)."""
@@ -91,6 +94,9 @@ class Measurement:
         settings = dict(settings or {})
         settings.setdefault("medium", self.medium)
         settings.setdefault("convention", self.convention)
+        settings.setdefault("line_set", self.line_set)
+        if self.level_model:
+            settings.setdefault("level_model", self.level_model)
         return line_table_for_paper(items, self.solution, self.spectrum, settings)
 
     def to_dict(self):
@@ -409,4 +415,4 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         v, verr = np.nan * _KMS, np.nan * _KMS
     return Measurement(z=zz, z_err=zerr, velocity=v, velocity_err=verr, convention=convention,
                        solution=sol, locks=locks, lines=out, line_set=set_name, medium=medium,
-                       spectrum=spectrum)
+                       spectrum=spectrum, level_model=getattr(table, "meta", {}).get("model"))

@@ -84,7 +84,13 @@ def test_overwrite_and_blend_options(demo, tmp_path, capsys):
     assert main(base) == 2
     assert "--overwrite" in capsys.readouterr().err
     assert target.read_text() == "my notes\n"  # refused: the user's file is untouched
-    assert main(base + ["--overwrite"]) == 0
+    assert main(base + ["--overwrite"]) == 2  # asked, but zline did not write it: refused
+    err = capsys.readouterr().err
+    assert "lines.json' exists and is a file zline did not write" in err
+    assert err.count("\n") == 1 and target.read_text() == "my notes\n"
+    target.unlink()
+    assert main(base) == 0
+    assert main(base + ["--overwrite"]) == 0  # zline's own result: replaced when asked
     joint = {d["label"]: d for d in json.loads(target.read_text())["lines"]}
     # [O II] 3726/3729 fitted together (the default blend distance) ...
     assert "[O II] 3729" in joint["[O II] 3726"]["blend"]

@@ -46,7 +46,8 @@ def add_arguments(parser):
     parser.add_argument("-o", "--output", default=None, metavar="OUT",
                         help="write to this file (required for fits); existing files are kept")
     parser.add_argument("--overwrite", action="store_true",
-                        help="replace an existing OUT instead of refusing")
+                        help="replace an existing OUT instead of refusing (only a file zline "
+                        "wrote as the same kind of output)")
     parser.add_argument("--blend", type=float, default=None, metavar="KM/S",
                         help="fit lines predicted closer than this together (default 500; 0: one by one)")
 
@@ -89,7 +90,8 @@ def _write_text(text, path, overwrite=False):
 
     exists = f"output file {path!r} exists; remove it, choose another name or pass --overwrite"
     try:
-        with atomic_path(path, overwrite=overwrite, exists_message=exists) as tmp, open(tmp, "w") as fh:
+        with atomic_path(path, overwrite=overwrite, exists_message=exists,
+                         kind="measure-output") as tmp, open(tmp, "w") as fh:
             fh.write(text + "\n")
     except FileExistsError as exc:
         raise CommandError(str(exc)) from None
@@ -105,9 +107,17 @@ def run(args):
         raise CommandError(f"--format {args.format!r} is not one of {list(FORMATS)}")
     if args.format in _BINARY and not args.output:
         raise CommandError(f"--format {args.format} is binary and needs -o OUT")
-    if args.output and os.path.exists(args.output) and not args.overwrite:
+    if args.output and os.path.lexists(args.output) and not args.overwrite:
         raise CommandError(f"output file {args.output!r} exists; remove it, choose another name "
                            f"or pass --overwrite")
+    if args.output and args.overwrite:  # refuse before measuring, not after
+        from zline.physics._atomic import check_replaceable
+
+        try:
+            check_replaceable(args.output, "measure-output" if args.format in ("text", "json")
+                              else "line-table")
+        except FileExistsError as exc:
+            raise CommandError(str(exc)) from None
     if args.blend is not None and not args.blend >= 0:
         raise CommandError(f"--blend must be a velocity >= 0 km/s; got {args.blend}")
     options = {} if args.blend is None else {"blend": args.blend * u.km / u.s}
@@ -125,7 +135,10 @@ def run(args):
     else:
         table = m.table()
         if args.output:
-            write_table(table, args.output, format=args.format, overwrite=args.overwrite)
+            try:
+                write_table(table, args.output, format=args.format, overwrite=args.overwrite)
+            except FileExistsError as exc:
+                raise CommandError(str(exc)) from None
         else:
             with tempfile.TemporaryDirectory() as tmpdir:
                 path = write_table(table, os.path.join(tmpdir, "table"), format=args.format)
