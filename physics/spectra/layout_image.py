@@ -55,8 +55,8 @@ def read(hdul, index, ctx, opts):
                        f"along FITS axis {axis}")
         elif data.ndim == 2:
             ctx.fail(f"holds a 2D image (NAXIS=2, shape {shape}); expected a 1D spectrum; pass "
-                     f"row= (spectral axis along NAXIS1) or column= (along NAXIS2) to take one "
-                     f"spectrum of it")
+                     f"row= (--row N on the command line; spectral axis along NAXIS1) or "
+                     f"column= (along NAXIS2) to take one spectrum of it")
         else:
             ctx.fail(f"holds a {data.ndim}D image (NAXIS={data.ndim}, shape {shape}); expected a "
                      f"1D spectrum (row=/column= work for 2D images only); extract one spectrum "
