@@ -71,7 +71,8 @@ def image_axis(header, k, n, ctx, opts):
                  f"expected a nonzero step")
     if crpix is None:
         crpix = 0.0
-        ctx.assume("axis-reference-default", f"CRPIX{k} missing: FITS default 0.0 used (WCS Paper I)")
+        ctx.assume("axis-reference-default",
+                   f"CRPIX{k} missing: FITS default 0.0 used (WCS Paper I)")
     pix = np.arange(1, n + 1, dtype=float) - crpix  # FITS pixels count from 1 (Paper I)
     cunit_text = str(header.get(f"CUNIT{k}", "")).strip()
     cunit = parse_unit(cunit_text) if cunit_text else None
@@ -101,7 +102,8 @@ def image_axis(header, k, n, ctx, opts):
             values = crval + delta * pix
             layout = "image-linear"
             if not ctype:
-                ctx.assume("axis-type-assumed", f"CTYPE{k} missing: axis read as a linear wavelength")
+                ctx.assume("axis-type-assumed",
+                           f"CTYPE{k} missing: axis read as a linear wavelength")
         unit = length_unit(cunit, values, k, ctx, opts, log10=is_log10, header=header)
         return values * unit, kind, medium, dict(layout=layout, source=f"CRVAL{k}/{dkey}")
 

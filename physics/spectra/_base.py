@@ -63,7 +63,7 @@ FLAG_CODES = {
     "axis-log10-assumed": "a log10 axis column without a unit; log10 of Angstrom was assumed",
     "flux-unit-missing": "no flux unit in the file; the flux is dimensionless",
     "flux-unit-unreadable": "the flux unit in the file cannot be read; the flux is dimensionless",
-    "flux-unit-from-option": "the flux unit in the file is missing or unreadable; flux_unit= was used",
+    "flux-unit-from-option": "the file's flux unit is missing or unreadable; flux_unit= was used",
     "image-extra-axes": "an N-dimensional image with one long axis was read as 1D",
     "file-truncated": "the file is shorter than its headers say; data may be missing",
     "file-repaired": "astropy repaired or ignored damaged header cards while reading",
@@ -234,8 +234,9 @@ def apply_medium_keywords(out, headers, ctx):
             out["medium"] = medium
             ctx.notes.append(f"medium {medium} from {card} in HDU {label}")
         elif out["medium"] != medium:
-            ctx.assume("medium-conflict", f"{card} in HDU {label} contradicts the axis type, which says "
-                       f"{out['medium']}; the axis type is kept (pass medium= to choose)")
+            ctx.assume("medium-conflict", f"{card} in HDU {label} contradicts the axis type, "
+                       f"which says {out['medium']}; the axis type is kept (pass medium= to "
+                       f"choose)")
         return
 
 

@@ -121,9 +121,11 @@ def build(out, ctx, opts, header=None, facts=None):
                                                   unit=target_funit ** -2)
         flux_q = newf
 
-    zmeta = dict(file=ctx.name, hdu=ctx.hdu_index, hdu_name=ctx.hdu_name, layout=out["layout"], medium=medium,
+    zmeta = dict(file=ctx.name, hdu=ctx.hdu_index, hdu_name=ctx.hdu_name, layout=out["layout"],
+                 medium=medium,
                  medium_assumed=assumed, uncertainty=kind if uncertainty is not None else None,
-                 assumptions=list(ctx.assumptions), flags=[dict(f) for f in ctx.flags], notes=list(ctx.notes), reversed=reversed_,
+                 assumptions=list(ctx.assumptions), flags=[dict(f) for f in ctx.flags],
+                 notes=list(ctx.notes), reversed=reversed_,
                  header=dict(facts or {}))
     if "rest_value" in extra:
         zmeta["rest_value"] = extra["rest_value"]
@@ -155,7 +157,7 @@ def decide_medium(kind, stated, override, ctx):
         return override, False
     if stated is not None:
         return stated, False
-    ctx.assume("medium-assumed", "the file does not say air or vacuum: vacuum assumed (pass medium='air' if the "
-               "wavelengths are in air)")
+    ctx.assume("medium-assumed", "the file does not say air or vacuum: vacuum assumed (pass "
+               "medium='air' if the wavelengths are in air)")
     return "vacuum", True
 

@@ -159,7 +159,8 @@ def _walk(stream, size, ctx):
                          "FITS); expected a FITS file starting with SIMPLE = T")
             if first != "XTENSION":
                 break  # padding or junk after the last HDU: astropy ignores it too
-            st.truncated, st.truncated_text = index, f"the file ends inside the header of HDU {label}"
+            st.truncated = index
+            st.truncated_text = f"the file ends inside the header of HDU {label}"
             st.hdus.append((index, first, name, False))
             break
         if index == 0 and first != "SIMPLE":

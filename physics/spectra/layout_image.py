@@ -51,11 +51,12 @@ def read(hdul, index, ctx, opts):
             keep = big[0]
             axis = data.ndim - keep  # numpy axis order is reversed FITS order
             selector = (lambda a, k=keep: a.reshape(-1) if a.size == a.shape[k] else a)
-            ctx.assume("image-extra-axes", f"NAXIS={data.ndim} with shape {shape}: read as 1D along FITS axis {axis}")
+            ctx.assume("image-extra-axes", f"NAXIS={data.ndim} with shape {shape}: read as 1D "
+                       f"along FITS axis {axis}")
         elif data.ndim == 2:
             ctx.fail(f"holds a 2D image (NAXIS=2, shape {shape}); expected a 1D spectrum; pass "
-                     f"row= (spectral axis along NAXIS1) or column= (along NAXIS2) to take one "
-                     f"spectrum of it")
+                     f"row= (--row N on the command line; spectral axis along NAXIS1) or "
+                     f"column= (along NAXIS2) to take one spectrum of it")
         else:
             ctx.fail(f"holds a {data.ndim}D image (NAXIS={data.ndim}, shape {shape}); expected a "
                      f"1D spectrum (row=/column= work for 2D images only); extract one spectrum "

@@ -212,9 +212,9 @@ def _check_complete(hdul, index, ctx):
                    f"expected a complete file (check the download or copy)")
     elif st.cut_after is not None:
         ctx.assume("file-truncated", f"the file ends inside the padding after HDU "
-                   f"{st.cut_after[1]} (its length is not a multiple of 2880 bytes): it was probably cut "
-                   f"there, so any extension after it (an uncertainty or mask) is lost; expected "
-                   f"a complete file (check the download or copy)")
+                   f"{st.cut_after[1]} (its length is not a multiple of 2880 bytes): it was "
+                   f"probably cut there, so any extension after it (an uncertainty or mask) is "
+                   f"lost; expected a complete file (check the download or copy)")
     elif st.nextend is not None and st.nextend > len(st.hdus) - 1:
         ctx.assume("extension-missing", f"NEXTEND = {st.nextend} in the primary header but the "
                    f"file holds {len(st.hdus) - 1} extension(s); an uncertainty or mask stored "

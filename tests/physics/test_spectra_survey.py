@@ -1,6 +1,8 @@
 """Survey headers: medium keywords, the primary BUNIT for table flux, the row-per-quantity 2D
 layout; checked on invented files written here and on the real survey spectra (``realdata``)."""
 
+import json
+
 import numpy as np
 import pytest
 import astropy.units as u
@@ -164,3 +166,21 @@ def test_realdata_lamost_stars_read_with_errors_and_mask(realdata):
         # log10-linear: the first pixel is at 10**COEFF0 (log10 of the first wavelength)
         assert spec.spectral_axis[0].to_value(u.AA) == pytest.approx(10 ** header["COEFF0"],
                                                                      rel=1e-4)
+
+
+def test_realdata_info_says_vacuum_from_the_header_and_row_option(realdata, capsys):
+    from zline.cli import main
+
+    sdss = next(row["path"] for row in realdata if row["kind"] == "qso")
+    assert main(["info", sdss, "--format", "json"]) == 0
+    captured = capsys.readouterr()
+    info = json.loads(captured.out)
+    assert info["medium"] == "vacuum" and info["medium_assumed"] is False
+    assert info["flux_unit"] == SDSS_FLUX_UNIT.to_string()
+    assert "medium-assumed" not in captured.err and "flux-unit" not in captured.err
+    star = next(row["path"] for row in realdata if row["file"].endswith("_sp06-008.fits"))
+    assert main(["info", star, "--row", "2", "--format", "json"]) == 0  # the normalised flux row
+    info = json.loads(capsys.readouterr().out)
+    assert info["uncertainty"] is None and any("row 2" in note for note in info["notes"])
+    with fits.open(star) as hdul:
+        assert info["n_pixels"] == hdul[0].header["NAXIS1"]
