@@ -474,4 +474,3 @@ def test_corpus_loads_right_or_fails_clearly(corpus):
     assert counts == {"raw": 0, "misread": 0, "hang": 0, "unclear": 0}, report
     assert n_loaded > 150 and n_refused > 300
     assert grown_mib < 500  # no header's promise is allocated
-    assert elapsed < 60.0
