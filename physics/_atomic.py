@@ -205,6 +205,9 @@ def describe_file(path):
     if head.startswith(b"SIMPLE  ="):
         return "a FITS file zline did not write"
     if head.startswith(b"# %ECSV"):
+        if "zline_batch" in _ecsv_meta(path):
+            return "a zline batch catalogue whose .parts folder is gone (remove it or choose " \
+                   "another name)"
         return "an ECSV table zline did not write"
     if head.lstrip()[:1] in (b"{", b"["):
         return "a JSON or other text file zline did not write"
