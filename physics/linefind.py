@@ -30,8 +30,9 @@ SEARCH_WINDOW = 500 * _KMS
 SEARCH_RESOLUTION_ELEMENTS = 5
 #: Trial FWHMs of the matched filter by line class: multiples of the resolution FWHM, or km/s
 #: (common practice: galaxy absorption features a few hundred km/s, quasar broad lines thousands).
-FIND_FWHM = {"emission": (1.0, 2.5), "absorption": (300 * _KMS, 700 * _KMS),
-             "broad": (3000 * _KMS, 6000 * _KMS)}
+FIND_FWHM = {"emission": tuple(1.25 ** np.arange(8)),
+             "absorption": tuple(200 * 1.25 ** np.arange(8) * _KMS),
+             "broad": tuple(1500 * 1.25 ** np.arange(10) * _KMS)}
 
 
 def line_class(kind, label="", set_name=""):
@@ -185,6 +186,15 @@ def find_shift(spectrum, predicted, classes, window=None):
     else:
         cls = None
     v = found[cls][1] if cls else 0.0
+    if cls:  # the width at the found shift, on a finer grid (less noise-driven than the scan)
+        for c_name in fwhms:
+            sel = classes == c_name
+            grid = fwhms[c_name].value * 1.06 ** np.arange(-8, 9)
+            grid = grid[grid >= res_kms * (1 - 1e-9)]
+            stats = [np.nansum(np.clip(_scan(x, y, e, pos[sel], signs[sel], w, np.array([v]),
+                                             factor_sign, pix_kms), 0, None) ** 2)
+                     for w in grid]
+            fwhms[c_name] = float(grid[int(np.argmax(stats))]) * _KMS
     snr_all = np.full(pos.size, np.nan)
     for c_name in set(classes):
         sel = classes == c_name

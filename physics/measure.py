@@ -32,7 +32,7 @@ from zline.physics.kinematics import CONVENTIONS, observed_position
 from zline.physics.linefind import find_shift, group_lines, line_class, search_window
 
 __all__ = ["BLEND_DISTANCE", "Measurement", "measure_spectrum", "default_line_set",
-           "select_lines", "measure_group", "FIT_HALF_WINDOW"]
+           "select_lines", "measure_group", "FIT_HALF_WINDOW", "WIDTH_FREE_SNR"]
 
 _KMS = u.km / u.s
 _C_KMS = _c.to_value(_KMS)
@@ -42,6 +42,9 @@ _C_KMS = _c.to_value(_KMS)
 BLEND_DISTANCE = 500 * _KMS
 #: Half width of a line's fit window: this many matched-filter FWHM, at least 12 pixels.
 FIT_HALF_WINDOW = 4.0
+#: A width class of a group fits its own FWHM only when one of its detected lines has at least
+#: this S/N; otherwise the FWHM found for the whole set is held.
+WIDTH_FREE_SNR = 10.0
 
 #: Physical type of the spectral axis -> default line set.
 DEFAULT_SETS = {"length": "galaxy-emission", "wavenumber": "galaxy-emission",
@@ -284,10 +287,10 @@ def measure_group(spectrum, group, sel, found, tol, blend_kms):
                           found.fwhm[c].to_value(_KMS) if c != "broad" else 0.0)
                 mode = "follow" if k in follow else "free"
                 out.append(Component(labels[k], pos[i] * s_unit, mode, sel["rest"][i],
-                                     rng * _KMS, gid[c], fw[i] * s_unit, False, c,
+                                     rng * _KMS, gid[c], fw[i] * s_unit, not free_width[c], c,
                                      follow.get(k)))
             else:
-                fix = not any(d and sel["cls"][j] == c for d, j in zip(detected, group))
+                fix = not free_width[c]
                 out.append(Component(labels[k], pos[i] * s_unit, "fixed", sel["rest"][i], None,
                                      gid[c], fw[i] * s_unit, fix, c))
         return out
@@ -317,6 +320,13 @@ def measure_group(spectrum, group, sel, found, tol, blend_kms):
                     ratios[k] = (lead, s_k / s_l)
                     reasons[k] = (f"unresolved from {labels[lead]}: flux ratio fixed to the line "
                                   f"set's expected strengths")
+    # a class fits its own width only with a line strong enough to fix it; weaker groups keep
+    # the set's matched-filter FWHM (noise would otherwise narrow the profile and the errors)
+    free_width = {c: any(det[k] and abs(fits[k].snr) >= WIDTH_FREE_SNR
+                         for k, i in enumerate(group) if sel["cls"][i] == c) for c in classes}
+    for k, i in enumerate(group):
+        if det[k] and not free_width[sel["cls"][i]] and not reasons[k]:
+            reasons[k] = "weak: FWHM held at the set's matched-filter value"
     if any(det):
         try:
             free = fit_group(spectrum, comps(det, follow), u.Quantity([lo, hi], s_unit),
