@@ -13,12 +13,14 @@
    lines closer than ``blend`` share one shift, and each width class shares one velocity width
    between the resolution floor and the ceiling of its kind.
 4. `~zline.physics.identify.solve_redshift` on the detected narrow lines (broad lines when the
-   set has no detected narrow line); every line reports its offset from the solution.
+   set has no detected narrow line), then `~zline.physics.jointshift.joint_shift`: one shift
+   for all of them with a Delta chi^2 = 1 error, which gives ``z``, ``z_err`` (the locks'
+   weighted mean stays in ``search["locks_z"]``); every line reports its offset from it.
 
 Lines not detected get upper limits (`zline.physics.fitting`, module docstring).
 """
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import astropy.units as u
 import numpy as np
@@ -27,7 +29,8 @@ from astropy.constants import c as _c
 from zline.physics.catalog import LINE_SETS, line_set
 from zline.physics.fitgroup import fit_group
 from zline.physics.fitting import SAMPLING_FWHM_PIXELS, Component, resolution_fwhm
-from zline.physics.identify import Lock, RedshiftSolution, solve_redshift
+from zline.physics.identify import Lock, RedshiftSolution, _velocity, solve_redshift
+from zline.physics.jointshift import JointWindow, joint_shift
 from zline.physics.kinematics import CONVENTIONS, observed_position
 from zline.physics.linefind import find_shift, group_lines, line_class, search_window
 
@@ -356,6 +359,61 @@ def _offsets(rows, sol, rest_of):
         r["offset_kms"] = _C_KMS * (obs / (rest * (1.0 + sol.z)) - 1.0)
 
 
+def _joint(spectrum, rows, sel, found, sol, label_row):
+    """`joint_shift` over the windows of the class used for z (every line of that class moves,
+    detected or not, so the shift does not lean on the noise that made the detections); None
+    when not applicable (no flux errors, minimum not bracketed)."""
+    from zline.physics.fitgroup import _window_data
+
+    s_unit = u.Quantity(spectrum.spectral_axis).unit
+    length = s_unit.physical_type == "length"
+    windows, ratios, floors = [], [], []
+    cls = {r["cls"] for r in rows if r.get("used_for_z")}
+    for gid in sorted({r["group"] for r in rows if r["cls"] in cls}):
+        members = [r for r in rows if r["group"] == gid]
+        lo, hi = members[0]["fit"].window.to_value(s_unit)
+        x, y, err = _window_data(spectrum, lo, hi, None, members[0]["label"])
+        if err is None:
+            return None
+        base, sigma, moving = [], [], []
+        for r in members:
+            i, fit = label_row[r["label"]], r["fit"]
+            pred = float(sel["predicted"][i].value)
+            fw = float(fit.fwhm.to_value(s_unit))
+            if not np.isfinite(fw) or fw <= 0:
+                fw = abs(pred) * found.fwhm[r["cls"]].to_value(_KMS) / _C_KMS
+            if r["cls"] in cls:  # every line of the class moves, detected or not
+                base.append(pred)
+                moving.append(True)
+                fw = abs(pred) * found.fwhm[r["cls"]].to_value(_KMS) / _C_KMS
+                floors.append(float(fit.fwhm_floor.to_value(s_unit)) / fw)
+                if r.get("used_for_z"):
+                    ratios.append(float(fit.center.to_value(s_unit)) / pred)
+            else:
+                c = float(fit.center.to_value(s_unit))
+                base.append(c if lo <= c <= hi else pred * _shift_factor(
+                    s_unit, found.velocity.to_value(_KMS)))
+                moving.append(False)
+            sigma.append(fw / 2.3548200450309493)
+        order = 1 if len(members) == 1 else 2
+        windows.append(JointWindow(x, y, err, order, np.array(base), np.array(sigma),
+                                   np.array(moving)))
+    r0 = float(np.median(ratios))
+    start = _C_KMS * ((r0 if length else 1.0 / r0) - 1.0)
+    v, lo_err, hi_err, _ = joint_shift(windows, start, _C_KMS * sol.z_err / (1 + sol.z), length,
+                                       min_scale=max(floors))
+    if not np.isfinite([v, lo_err, hi_err]).all():
+        return None
+    i = label_row[next(r["label"] for r in rows if r.get("used_for_z"))]
+    pred, rest = float(sel["predicted"][i].value), float(sel["rest"][i].value)
+    s_trial = pred / rest if length else rest / pred
+    shift = s_trial * (1.0 + v / _C_KMS)
+    rel_err = 0.5 * (lo_err + hi_err) / _C_KMS / (1.0 + v / _C_KMS)
+    vel, dv = _velocity(shift, sol.convention)
+    return replace(sol, z=shift - 1.0, z_err=shift * rel_err, velocity=vel * _KMS,
+                   velocity_err=abs(dv) * rel_err * _KMS)
+
+
 def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", lines=None, *,
                      tolerance=100 * _KMS, min_strength=0.0, solve_for=None,
                      blend=BLEND_DISTANCE, window=None):
@@ -457,6 +515,10 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
     if locks:
         solve_for = solve_for or ("velocity" if float(z) == 0.0 else "z")
         sol = solve_redshift(locks, convention=convention, solve_for=solve_for)
+        search["locks_z"], search["locks_z_err"] = sol.z, sol.z_err
+        joint = _joint(spectrum, rows, sel, found, sol, label_row)
+        search["joint"] = joint is not None
+        sol = joint or sol
         zz, zerr, v, verr = sol.z, sol.z_err, sol.velocity, sol.velocity_err
     else:
         sol, zz, zerr = None, float("nan"), float("nan")
