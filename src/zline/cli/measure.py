@@ -49,7 +49,12 @@ def add_arguments(parser):
                         help="replace an existing OUT instead of refusing (only a file zline "
                         "wrote as the same kind of output)")
     parser.add_argument("--blend", type=float, default=None, metavar="KM/S",
-                        help="fit lines predicted closer than this together (default 500; 0: one by one)")
+                        help="detected lines predicted closer than this share one shift (default "
+                             "500; 0: each its own centre); lines whose fit windows overlap are "
+                             "always fitted together")
+    parser.add_argument("--window", type=float, default=None, metavar="KM/S",
+                        help="search half-window around the trial shift (default: the larger of "
+                             "500 km/s and 5 resolution FWHM)")
 
 
 def _num(x, fmt):
@@ -64,7 +69,14 @@ def format_text(result):
            f"velocity    {_num(result['velocity'], '.3f')} +- "
            f"{_num(result['velocity_err'], '.2g')} km/s",
            f"detected    {result['n_detected']} of {len(result['lines'])} lines fitted",
-           f"units       position {result['spectral_unit']}, flux {result['flux_unit']}", ""]
+           f"units       position {result['spectral_unit']}, flux {result['flux_unit']}"]
+    search = result.get("search") or {}
+    if search:
+        out.append(f"search      +-{_num(search.get('window'), '.0f')} km/s, set shifted by "
+                   f"{_num(search.get('shift'), '.1f')} km/s from the trial"
+                   f"{'' if search.get('found') else ' (no line found: trial kept)'}; FWHM floor "
+                   f"from the {search.get('resolution', '?')}")
+    out.append("")
     width = max([len(r["label"]) for r in result["lines"]] + [5])
     out.append(f"{'label':<{width}}  {'observed':>14} {'err':>9} {'flux':>11} {'flux_err':>9} "
                f"{'snr':>7} {'fwhm_kms':>9} {'resid_kms':>9}  note")
@@ -120,7 +132,11 @@ def run(args):
             raise CommandError(str(exc)) from None
     if args.blend is not None and not args.blend >= 0:
         raise CommandError(f"--blend must be a velocity >= 0 km/s; got {args.blend}")
+    if args.window is not None and not args.window > 0:
+        raise CommandError(f"--window must be a velocity > 0 km/s; got {args.window}")
     options = {} if args.blend is None else {"blend": args.blend * u.km / u.s}
+    if args.window is not None:
+        options["window"] = args.window * u.km / u.s
     spectrum = read_spectrum_for(args, COMMAND)  # prints the reader's warnings
     m = measure_spectrum(spectrum, z=args.z, velocity=args.velocity * u.km / u.s,
                          convention=args.convention, lines=args.lines, **options)
