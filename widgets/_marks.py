@@ -206,17 +206,37 @@ def display_smooth(y, kind, width):
     return out
 
 
+def _despike(y):
+    """Copy of ``y`` with isolated one-pixel spikes and dips set to their higher (lower) neighbour.
+
+    A pixel is a spike when it rises above both neighbours by more than three times what the
+    higher neighbour rises above the median (or three noise sigmas, whichever is more): a
+    resolved line climbs through its neighbours and is kept whole.
+    """
+    if y.size < 3:
+        return y
+    med = float(np.median(y))
+    noise = 1.4826 * float(np.median(np.abs(np.diff(y)))) / np.sqrt(2.0)
+    out = y.copy()
+    hi_nb = np.maximum(y[:-2], y[2:])
+    lo_nb = np.minimum(y[:-2], y[2:])
+    mid = y[1:-1]
+    spike = (mid - hi_nb) > 3.0 * np.maximum(hi_nb - med, noise)
+    dip = (lo_nb - mid) > 3.0 * np.maximum(med - lo_nb, noise)
+    out[1:-1] = np.where(spike, hi_nb, np.where(dip, lo_nb, mid))
+    return out
+
+
 def robust_limits(y, log=False):
     """Flux-axis limits that show every feature of ``y`` but ignore a single-pixel spike.
 
-    The top and bottom come from the 3-pixel running median (a one-pixel spike or dip is
-    dropped, a resolved line is kept), padded by 6 % below and 10 % above; on a log axis only
-    positive values count and the padding is multiplicative.  Returns None when nothing is left.
+    Isolated one-pixel spikes and dips are set to their neighbours' level (a resolved line is
+    kept whole); the rest sets the limits, padded by 6 % below and 10 % above.  On a log axis
+    only positive values count and the padding is multiplicative.  Returns None when nothing
+    is left.
     """
     y = np.asarray(y, dtype=float)
-    y = y[np.isfinite(y)]
-    if y.size >= 3:
-        y = np.median(np.vstack([y[:-2], y[1:-1], y[2:]]), axis=0)
+    y = _despike(y[np.isfinite(y)])
     if log:
         y = y[y > 0]
     if y.size == 0:

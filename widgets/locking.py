@@ -60,14 +60,30 @@ class LockingMixin:
             self._say(f"nothing locked: no predicted line within {tol:.3g} {self._xunit} of {value:.7g}; "
                       f"nearest: {names}", level="warning")
             return None
-        return self.lock(near=near, line=int(i))
+        return self.lock(near=self._snap(value, tol) * self._xunit, line=int(i))
+
+    def _snap(self, value, tol):
+        """Where the user meant: the pixel within ``tol`` of a click that stands out most from the
+        local median (in units of its error when known); the click itself if nothing is there."""
+        x, flux = self.plot._x, self.plot._flux
+        a, b = np.searchsorted(x, [value - tol, value + tol])
+        good = ~self.plot._mask[a:b]
+        if b - a < 3 or good.sum() < 3:
+            return value
+        seg = flux[a:b][good]
+        dev = np.abs(seg - np.median(seg))
+        if self.plot._err is not None:
+            dev = dev / np.where(self.plot._err[a:b][good] > 0, self.plot._err[a:b][good], np.inf)
+        return float(x[a:b][good][int(np.argmax(dev))])
 
     def _on_strip_click(self, line_index, v_kms):
         try:
             rest = self._rest[line_index] * self._xunit
             near = kinematics.observed_position(rest, z=self.z, velocity=(self.velocity + v_kms) * _KMS,
                                                 convention=self.convention)
-            self.lock(near=near, line=int(line_index))
+            value = float(near.to_value(self._xunit, equivalencies=u.spectral()))
+            tol = abs(value) * 0.25 * self.strip.half_width / 299792.458   # a quarter of the panel
+            self.lock(near=self._snap(value, tol) * self._xunit, line=int(line_index))
         except Exception as exc:    # noqa: BLE001 - shown to the user
             self._say(f"{type(exc).__name__}: {exc}", level="error")
 
