@@ -67,7 +67,7 @@ class Controls:
         self.set_menu = W.Dropdown(options=list(LINE_SETS), description="line set",
                                    layout=W.Layout(width="250px"))
         self.mode = W.ToggleButtons(options=list(MODES), value="pan/zoom", tooltips=list(MODES.values()),
-                                    style={"button_width": "80px"})
+                                    style={"button_width": "90px"})
         self.mode.add_class("zline-mode")
         self.jump = W.Dropdown(options=[], description="line", layout=W.Layout(width="210px"))
         self.jump_button = W.Button(description="zoom to line", layout=W.Layout(width="110px"))
@@ -89,6 +89,7 @@ class Controls:
         self.undo.add_class("zline-undo")
         self.redo = W.Button(description="redo", tooltip="redo the lock change last undone")
         self.save_path = W.Text(value="zline-session.json", description="save as", layout=W.Layout(width="290px"))
+        self.save_path.add_class("zline-save-path")
         self.save = W.Button(description="save")
         self.save.add_class("zline-save")
         self.upload = W.FileUpload(accept=".fits,.fit,.fts,.gz", multiple=False, description="open FITS")
@@ -182,30 +183,34 @@ class ShiftControlsMixin:
         """The one readout format of z (enough digits to give the value back exactly to 1e-10)."""
         return f"{z:.10f}".rstrip("0").rstrip(".") if abs(z) < 100 else f"{z:.10g}"
 
-    def _slider_window(self, z):
-        """Slider range and step: the z span that moves a line across the visible range."""
+    def _slider_span(self, z):
+        """Slider span and step in z: the change that moves a line across the visible range."""
         lo, hi = self.plot.view_range()
         span = abs(hi - lo) / (0.5 * abs(hi + lo)) * (1.0 + z)
         span = float(np.clip(span, 1e-6, 10.0))
-        step = span / _SLIDER_STEPS
-        return max(z - span / 2, -0.99), z + span / 2, step
+        return span, span / _SLIDER_STEPS
 
-    def _sync_controls(self, recentre=False):
-        """Push the state into the controls (compare before assign; one message per control)."""
+    def _sync_controls(self, recentre=True):
+        """Push the state into the controls (compare before assign; one message per control).
+
+        The slider moves z relative to an anchor: it shows the offset ``z - anchor`` over the
+        span of the visible range.  Whenever z changes from anywhere but the slider, the anchor
+        becomes z and the slider goes back to 0, which lies exactly on its step grid: an echo of
+        the browser slider can then only ever say "z = anchor", never a rounded z.
+        """
         ui, z = self.ui, self.z
         self._syncing = True
         try:
             s = ui.slider
-            if recentre or not (s.min <= z <= s.max):
-                lo, hi, step = self._slider_window(z)
+            if recentre:
+                span, step = self._slider_span(z)
+                self._anchor = z
                 with s.hold_sync():
                     # widen first, then set the value, then narrow: the slider clamps to [min, max]
-                    s.max, s.min = max(s.max, hi), min(s.min, lo)
-                    s.value = z
-                    s.min, s.max, s.step = lo, hi, step
-            elif s.value != z:
-                s.value = z
-            self._slider_pushed = z
+                    s.max, s.min = max(s.max, span / 2), min(s.min, -span / 2)
+                    s.value = 0.0
+                    s.min, s.max, s.step = -span / 2, span / 2, step
+                self._slider_pushed = 0.0
             text = self.format_z(z)
             if ui.z_text.value != text:
                 ui.z_text.value = text
@@ -221,12 +226,15 @@ class ShiftControlsMixin:
     def _on_slider(self, change):
         if self._syncing:
             return
-        # the browser slider snaps a value set from here to its step and may send that back;
-        # such an echo (within half a step of what was pushed) must never change z
-        pushed = self._slider_pushed if self._slider_pushed is not None else self.z
-        if abs(change["new"] - pushed) <= 0.5 * self.ui.slider.step * (1 + 1e-9):
+        # an echo of what was pushed (0, or a value snapped to the step) must never change z
+        if abs(change["new"] - self._slider_pushed) <= 0.5 * self.ui.slider.step * (1 + 1e-9):
             return
-        self.z = float(change["new"])
+        self._slider_pushed = float(change["new"])
+        self._from_slider = True
+        try:
+            self.z = self._anchor + float(change["new"])
+        finally:
+            self._from_slider = False
 
     def _on_z_text(self, change):
         if self._syncing:
@@ -237,15 +245,14 @@ class ShiftControlsMixin:
                 raise ValueError
         except ValueError:
             self._say(f"z must be a number above -1; got {change['new']!r}", level="error")
-            self._sync_controls()
+            self._sync_controls(recentre=False)
             return
-        if z != self.z:
-            self.z = z
-        self._sync_controls(recentre=True)
+        self.z = z
+        self._sync_controls()
 
     def _on_shift_traits(self, change):
         if self._ready:
-            self._sync_controls()
+            self._sync_controls(recentre=not getattr(self, "_from_slider", False))
             self._apply_shift()
             if self._book.entries:
                 self._show_results()
@@ -262,12 +269,12 @@ class ShiftControlsMixin:
             self.plot.set_log(change["new"])
         else:
             self.plot.set_smoothing(self.smoothing, self.smoothing_px)
-        self._sync_controls()
+        self._sync_controls(recentre=False)
 
     def _on_view(self):
         self._update_rest_axis()
         if self._ready:
-            self._sync_controls(recentre=True)
+            self._sync_controls()
 
     def zoom_to(self, line):
         """Zoom the plot onto one line of the set (label or row index); None shows everything."""

@@ -77,7 +77,7 @@ class LineIdentifier(LockingMixin, ShiftControlsMixin, glue.SessionMixin, Identi
         self._medium_arg, self._ready, self._syncing = medium, False, False
         self._book, self._solution, self._scan = LockBook(), None, (None, None)
         self._source_name = self._source_sha256 = None
-        self._slider_pushed = None
+        self._slider_pushed, self._anchor = 0.0, float(z)
         self._confirm = glue.ConfirmStep()
         self.plot = SpectrumPlot(width=width, label_rows=label_rows)
         self.plot.to_observed = lambda rest: self._observed(rest, self._factor_now)
@@ -98,7 +98,10 @@ class LineIdentifier(LockingMixin, ShiftControlsMixin, glue.SessionMixin, Identi
         self._apply_shift()
         self._sync_controls(recentre=True)
         self.ui.help.value = help_html(self.click_tolerance_text())
-        self.children = [self._header, self.plot.band_figure, self.figure, self.plot.key, self.strip.widget,
+        self.view = W.VBox([self._header, self.plot.band_figure, self.figure, self.plot.key])
+        self.view.add_class("zline-view")
+        self.add_class("zline-identifier")
+        self.children = [self.view, self.strip.widget,
                          self.ui.shift_box, self.ui.view_box, self.ui.lock_box, self.ui.scan_box,
                          self.ui.export_box, self.ui.help, self.ui.status]
         self._keys = self.ui.watch_keys(self, self._on_key)
@@ -299,6 +302,8 @@ class LineIdentifier(LockingMixin, ShiftControlsMixin, glue.SessionMixin, Identi
             self.ui.set_menu.value = self._set_name
             by_strength = np.argsort(-self._strength, kind="stable")
             self.ui.jump.options = [(f"{self._labels[i]}", int(i)) for i in by_strength]
+            if by_strength.size:
+                self.ui.jump.value = int(by_strength[0])
         finally:
             self._syncing = False
         self._locks_changed(say=False)

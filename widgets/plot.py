@@ -301,10 +301,13 @@ class SpectrumPlot:
         occupied = [(lpx[self.locked_rows == r], lwidth[self.locked_rows == r])
                     for r in range(self.label_rows)]
         px = (self.to_observed(self._rest) - lo) * scale
-        px = np.where((px >= 0) & (px <= self.plot_px), px, np.nan)
+        widths = np.array([len(t) * _CHAR_PX for t in self._labels], dtype=float)
+        # a label may reach into the figure's margins, never beyond them
+        fits = (px >= 0) & (px <= self.plot_px) & (px - widths / 2 >= -MARGIN["left"]) \
+            & (px + widths / 2 <= self.plot_px + MARGIN["right"])
+        px = np.where(fits, px, np.nan)
         if ltext:
             px = np.where(np.isin(self._labels, ltext), np.nan, px)   # a lock labels its own line
-        widths = np.array([len(t) * _CHAR_PX for t in self._labels], dtype=float)
         self.rows = place_labels(px, widths, self._strength, self.label_rows, occupied=occupied)
         text = [t if r >= 0 else "" for t, r in zip(ltext, self.locked_rows)]
         y = self._row_y(self.locked_rows)

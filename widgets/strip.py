@@ -48,7 +48,7 @@ class VerificationStrip:
         self.panels = []
         pw = max(int(width / self.n_panels) - 2, 110)
         for k in range(self.n_panels):
-            vs = bq.LinearScale(min=-500.0, max=500.0)
+            vs = bq.LinearScale(min=-500.0, max=500.0, allow_padding=False)
             ys, us = bq.LinearScale(), bq.LinearScale(min=0.0, max=1.0)
             data = bq.Lines(x=[0.0], y=[0.0], scales={"x": vs, "y": ys}, colors=[PALETTE["spectrum"]],
                             stroke_width=1.2, labels=["data"])
@@ -61,7 +61,8 @@ class VerificationStrip:
                                y=[0.0, 1.0], scales={"x": vs, "y": us})
             catcher.on_element_click(self._click_handler(k))
             fig = bq.Figure(marks=[zero, data, fit, catcher], title="",
-                            axes=[bq.Axis(scale=vs, num_ticks=3, tick_format=".0f", grid_lines="none"),
+                            axes=[bq.Axis(scale=vs, tick_values=[-250.0, 0.0, 250.0], tick_format=".0f",
+                                          grid_lines="none"),
                                   bq.Axis(scale=ys, orientation="vertical", num_ticks=3, tick_format=".2g",
                                           grid_lines="none")],
                             fig_margin=dict(top=24, bottom=28, left=42, right=6), animation_duration=0,
@@ -138,12 +139,19 @@ class VerificationStrip:
             p["fig"].title = title
         with p["vs"].hold_trait_notifications():
             p["vs"].min, p["vs"].max = -n, n
+        ticks = [-n / 2, 0.0, n / 2]
+        if list(p["fig"].axes[0].tick_values) != ticks:
+            p["fig"].axes[0].tick_values = ticks
         with p["catcher"].hold_sync():
             p["catcher"].x = [-n, n]
         with p["data"].hold_sync():
             p["data"].x, p["data"].y = (v, y) if v.size else ([0.0], [np.nan])
+        window = None
         if fit is not None and x.size:
-            fine = np.linspace(x[0], x[-1], 200)
+            w0, w1 = sorted(fit.window.to_value(self._unit, equivalencies=u.spectral()))
+            window = (max(w0, x[0]), min(w1, x[-1]))     # the model holds only where it was fitted
+        if window is not None and window[1] > window[0]:
+            fine = np.linspace(window[0], window[1], 200)
             fv = velocity_from(fine * self._unit, centre * self._unit, convention=convention).to_value(_KMS)
             fy = np.asarray(fit.model_flux(fine * self._unit).value, dtype=float)
             with p["fit"].hold_sync():

@@ -49,29 +49,30 @@ def marker_positions(w):
 
 # ------------------------------------------------------------------ traits and controls
 def test_traits_follow_controls_and_back(w):
-    frontend_update(w.ui.slider, value=0.105)
+    frontend_update(w.ui.slider, value=0.0055)   # the slider moves z from its anchor (0.0995)
     assert w.z == pytest.approx(0.105)
     assert w.ui.z_text.value == w.format_z(w.z)
+    assert w.ui.slider.value == 0.0055           # a drag is not recentred under the pointer
     frontend_update(w.ui.z_text, value="0.1012345")
     assert w.z == 0.1012345                      # typed: exactly, not rounded to a slider step
-    assert w.ui.slider.value == pytest.approx(0.1012345)
+    assert w.ui.slider.value == 0.0 and w._anchor == 0.1012345
     w.velocity = 250.0
     assert w.ui.v_text.value == 250.0
     frontend_update(w.ui.v_text, value=-80.0)
     assert w.velocity == -80.0
     frontend_update(w.ui.conv, index=list(w.ui.conv.options).index("relativistic"))
     assert w.convention == "relativistic"
-    w.z = 3.7                                   # beyond the slider range: the slider recentres
-    assert w.ui.slider.value == pytest.approx(3.7) and w.ui.slider.min < 3.7 < w.ui.slider.max
+    w.z = 3.7                                   # any z from code: the slider recentres on it
+    assert w.ui.slider.value == 0.0 and w._anchor == 3.7 and w.ui.slider.min < 0 < w.ui.slider.max
 
 
 def test_observer_fires_once_per_change(w):
     seen = mock.Mock()
     w.observe(seen, names="z")
-    frontend_update(w.ui.slider, value=0.2)
+    frontend_update(w.ui.slider, value=0.02)
     seen.assert_called_once()
-    assert seen.call_args[0][0]["new"] == pytest.approx(0.2)
-    frontend_update(w.ui.slider, value=0.2)      # same value again: no new event
+    assert seen.call_args[0][0]["new"] == pytest.approx(0.1195)
+    frontend_update(w.ui.slider, value=0.02)     # same value again: no new event
     seen.assert_called_once()
 
 
@@ -87,21 +88,21 @@ def test_bad_convention_and_bare_numbers_are_refused(w, spectrum, lines):
 def test_slider_step_follows_the_visible_range(w):
     w.z = 0.1
     coarse = w.ui.slider.step
-    assert w.ui.slider.min < 0.1 < w.ui.slider.max
+    # dragging across the whole slider moves a line across the whole view (5000 A here)
+    assert 6564.6 * (w.ui.slider.max - w.ui.slider.min) / 1.1 == pytest.approx(5000.0, rel=0.05)
     frontend_update(w.plot.xs, min=7200.0, max=7240.0)     # zoom onto one line
     fine = w.ui.slider.step
     assert fine < coarse / 50
     # one step moves a line by a small fraction of a spectrum pixel (0.25 A here)
     assert 6564.6 * fine < 0.1 * 0.25
-    assert w.ui.slider.min < w.z < w.ui.slider.max and w.z == 0.1
+    assert w.ui.slider.value == 0.0 and w._anchor == w.z == 0.1
 
 
 def test_a_typed_z_far_away_lands_exactly(w):
     frontend_update(w.plot.xs, min=7200.0, max=7240.0)     # narrow slider window
     for text in ("0.5", "0.0733985", "2.3456789012"):
         frontend_update(w.ui.z_text, value=text)
-        assert w.z == float(text)
-        assert w.ui.slider.min <= w.z <= w.ui.slider.max
+        assert w.z == float(text) and w._anchor == w.z and w.ui.slider.value == 0.0
     frontend_update(w.ui.z_text, value="not a number")
     assert w.z == 2.3456789012 and "Problem" in w.status
     assert w.ui.z_text.value == w.format_z(w.z)
@@ -639,8 +640,12 @@ def test_locked_and_predicted_labels_share_the_rows_without_crowding(spectrum):
 def test_slider_echo_snapped_to_its_step_keeps_the_exact_z(w):
     w.z = 0.0733994
     s = w.ui.slider
-    snapped = s.min + round((0.0733994 - s.min) / s.step) * s.step
-    frontend_update(s, value=snapped)            # what the browser slider sends back
+    frontend_update(s, value=0.4 * s.step)       # what a browser slider may send back after snapping
     assert w.z == 0.0733994
-    frontend_update(s, value=0.0733994 + 2 * s.step)            # a real move of two steps
+    frontend_update(s, value=0.0)
+    assert w.z == 0.0733994
+    frontend_update(s, value=2 * s.step)          # a real move of two steps
     assert w.z == pytest.approx(0.0733994 + 2 * s.step)
+    w.z = 0.0733985                               # a value from code: recentred, exact
+    frontend_update(s, value=0.0)                 # a late echo of the old position
+    assert w.z == 0.0733985
