@@ -106,7 +106,7 @@ class SpectrumPlot:
         self.band_figure.add_class("zline-band")
         self.key = W.HTML(KEY_HTML)
         self.groups = []
-        self._rest = self._labels = self._strength = np.zeros(0)
+        self._rest = self._labels = self._strength = self._widths = np.zeros(0)
         self._locks = (np.zeros(0), [], np.zeros(0))
         self.rows = np.zeros(0, dtype=int)
         self.locked_rows = np.zeros(0, dtype=int)
@@ -220,13 +220,14 @@ class SpectrumPlot:
         if self.xs.min is None or self.xs.max is None or self.xs.max <= self.xs.min or not self._x.size:
             return
         self.redraw()
-        self.place_labels()
+        self.move_lines()
         self.on_view()
 
     # ------------------------------------------------------------------ predicted lines
     def set_lines(self, rest, labels, strength, kinds, palette_of):
         """One guide mark (data view), one tick mark and one label mark (band) per style group."""
         self._rest, self._labels, self._strength = rest, labels, strength
+        self._widths = np.array([len(t) * _CHAR_PX for t in labels], dtype=float)
         n = rest.size
         strong = strength >= (np.nanmedian(strength) if n else 0.0)
         self.groups = []
@@ -246,11 +247,11 @@ class SpectrumPlot:
                 tx, ty = marker_arrays(rest[index], 0.0, 0.16)
                 tick = bq.Lines(x=tx, y=ty, scales=bs, colors=[colour], labels=[f"ticks-{tag}"],
                                 stroke_width=1.5 if is_strong else 1.0, line_style=style)
-                label = bq.Label(x=rest[index], y=np.ones(index.size), scales=bs,
-                                 text=[""] * index.size, colors=[colour], align="middle",
+                label = bq.Label(x=[], y=[], scales=bs, text=[], colors=[colour], align="middle",
                                  default_size=11, font_weight="bold" if is_strong else "normal")
                 self.groups.append(dict(key=(kind, is_strong), index=index, rest=rest[index],
-                                        rest_vertices=gx, guide=guide, tick=tick, label=label))
+                                        rest_vertices=gx, guide=guide, tick=tick, label=label,
+                                        shown=np.zeros(0, dtype=int)))
         self.figure.marks = ([self.shade_telluric, self.shade_masked] + [g["guide"] for g in self.groups]
                              + [self.band, self.line, self.locked_top, self.catcher])
         self.band_figure.marks = ([g["tick"] for g in self.groups] + [g["label"] for g in self.groups]
@@ -258,15 +259,27 @@ class SpectrumPlot:
         self.move_lines()
 
     def move_lines(self):
-        """Put guides, ticks and labels at the observed positions (x only is sent)."""
+        """Put guides, ticks and labels at the observed positions.
+
+        Only lines in view are drawn, at most one per half screen pixel (more could not be told
+        apart); while that set keeps its size only x is sent.
+        """
+        lo, hi = self.view_range() if self.xs.min is not None else (-np.inf, np.inf)
+        half_px = 2.0 * self.plot_px / (hi - lo) if np.isfinite(hi - lo) and hi > lo else 0.0
         for g in self.groups:
-            obs = self.to_observed(g["rest_vertices"])
-            with g["guide"].hold_sync():
-                g["guide"].x = obs
-            with g["tick"].hold_sync():
-                g["tick"].x = obs
-            with g["label"].hold_sync():
-                g["label"].x = self.to_observed(g["rest"])
+            obs = self.to_observed(g["rest"])
+            keep = (obs >= lo) & (obs <= hi)
+            if half_px and keep.sum() > self.plot_px:
+                bins = np.round((obs - lo) * half_px)
+                first = np.zeros(obs.size, bool)
+                first[np.unique(np.where(keep, bins, -1), return_index=True)[1]] = True
+                keep &= first
+            gx, gy = marker_arrays(obs[keep], 0.0, 1.0)
+            for mark, top in ((g["guide"], 1.0), (g["tick"], 0.16)):
+                with mark.hold_sync():
+                    if np.asarray(mark.x).size != gx.size:
+                        mark.y = gy * top
+                    mark.x = gx
         self.place_labels()
 
     def set_locks(self, observed, labels, strength):
@@ -301,26 +314,37 @@ class SpectrumPlot:
         occupied = [(lpx[self.locked_rows == r], lwidth[self.locked_rows == r])
                     for r in range(self.label_rows)]
         px = (self.to_observed(self._rest) - lo) * scale
-        widths = np.array([len(t) * _CHAR_PX for t in self._labels], dtype=float)
+        widths = self._widths
         # a label may reach into the figure's margins, never beyond them
         fits = (px >= 0) & (px <= self.plot_px) & (px - widths / 2 >= -MARGIN["left"]) \
             & (px + widths / 2 <= self.plot_px + MARGIN["right"])
-        px = np.where(fits, px, np.nan)
         if ltext:
-            px = np.where(np.isin(self._labels, ltext), np.nan, px)   # a lock labels its own line
-        self.rows = place_labels(px, widths, self._strength, self.label_rows, occupied=occupied)
+            fits &= ~np.isin(self._labels, ltext)        # a lock labels its own line
+        # in a crowded view only the strongest few hundred can ever get a row: place those
+        inside = np.flatnonzero(fits)
+        cap = int(self.label_rows * self.plot_px / (3 * _CHAR_PX + 4))
+        if inside.size > cap:
+            inside = inside[np.argpartition(-self._strength[inside], cap)[:cap]]
+        self.rows = np.full(self._rest.size, -1, dtype=int)
+        self.rows[inside] = place_labels(px[inside], widths[inside], self._strength[inside], self.label_rows,
+                                         occupied=occupied)
         text = [t if r >= 0 else "" for t, r in zip(ltext, self.locked_rows)]
         y = self._row_y(self.locked_rows)
         if list(self.locked_labels.text) != text or not np.array_equal(self.locked_labels.y, y):
             with self.locked_labels.hold_sync():
                 self.locked_labels.text, self.locked_labels.y = text, y
-        y_all = self._row_y(self.rows)
+        # each label mark carries only the labels shown: a z change then moves a few dozen texts
         for g in self.groups:
-            text = [self._labels[i] if self.rows[i] >= 0 else "" for i in g["index"]]
-            y = y_all[g["index"]]
-            if list(g["label"].text) != text or not np.array_equal(np.asarray(g["label"].y, float), y):
+            shown = g["index"][self.rows[g["index"]] >= 0]
+            x = self.to_observed(self._rest[shown])
+            if np.array_equal(shown, g["shown"]):
                 with g["label"].hold_sync():
-                    g["label"].text, g["label"].y = text, y
+                    g["label"].x = x
+                continue
+            g["shown"] = shown
+            with g["label"].hold_sync():
+                g["label"].x, g["label"].y = x, self._row_y(self.rows[shown])
+                g["label"].text = [str(self._labels[i]) for i in shown]
 
     # ------------------------------------------------------------------ rest-frame axis
     def show_rest_axis(self, show, limits=None, label=""):

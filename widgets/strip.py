@@ -17,6 +17,7 @@ with warnings.catch_warnings():
     warnings.filterwarnings("ignore", category=DeprecationWarning, message="metadata")
     import bqplot as bq
 
+from zline.physics.decimate import DecimationPyramid
 from zline.physics.kinematics import observed_position, velocity_from
 
 from ._marks import PALETTE, robust_limits, transparent_png
@@ -47,6 +48,7 @@ class VerificationStrip:
         self.on_click = lambda line_index, v_kms: None
         self.panels = []
         pw = max(int(width / self.n_panels) - 2, 110)
+        self._panel_px = pw - 48
         for k in range(self.n_panels):
             vs = bq.LinearScale(min=-500.0, max=500.0, allow_padding=False)
             ys, us = bq.LinearScale(), bq.LinearScale(min=0.0, max=1.0)
@@ -87,6 +89,7 @@ class VerificationStrip:
         """The spectrum the panels cut from (increasing ``x`` in ``unit``; masked pixels hidden)."""
         self._x, self._y, self._unit = x, np.where(mask, np.nan, flux), unit
         self._pixel_kms = pixel_kms
+        self._pyramid = DecimationPyramid(x, self._y)    # a panel never draws more than ~2 points/px
 
     def set_lines(self, rest, labels, strength):
         self.lines = (rest, labels, strength)
@@ -129,11 +132,8 @@ class VerificationStrip:
     def _draw_panel(self, p, i, centre, n, convention, fit):
         rest, labels, _ = self.lines
         span = centre * 1.3 * n / _C_KMS
-        a = int(np.searchsorted(self._x, centre - span))
-        b = int(np.searchsorted(self._x, centre + span))
-        x = self._x[a:b]
+        x, y = self._pyramid.window(centre - span, centre + span, self._panel_px)
         v = velocity_from(x * self._unit, centre * self._unit, convention=convention).to_value(_KMS)
-        y = self._y[a:b]
         title = f"{labels[i]}"
         if p["fig"].title != title:
             p["fig"].title = title
@@ -161,9 +161,18 @@ class VerificationStrip:
             with p["fit"].hold_sync():
                 p["fit"].x, p["fit"].y = [np.nan], [np.nan]
         limits = robust_limits(y)
-        if limits is not None:
+        if limits is not None and self._rescale_needed(p["ys"], limits):
             with p["ys"].hold_trait_notifications():
                 p["ys"].min, p["ys"].max = float(limits[0]), float(limits[1])
+
+    @staticmethod
+    def _rescale_needed(scale, limits):
+        """Rescale a panel only when its data range changed by more than 15 % (each rescale
+        redraws the panel's axes in the browser, the dearest part of a live update)."""
+        if scale.min is None or scale.max is None:
+            return True
+        span = max(float(scale.max - scale.min), 1e-300)
+        return max(abs(limits[0] - scale.min), abs(limits[1] - scale.max)) > 0.15 * span
 
     def shown_lines(self):
         """Line index shown in each panel (None for an empty panel)."""
