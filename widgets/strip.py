@@ -76,6 +76,7 @@ class VerificationStrip:
         self.widget = W.VBox([self.title, W.HBox([p["fig"] for p in self.panels])])
         self.widget.add_class("zline-strip")
         self.lines = None
+        self._fit_cache = {}
 
     def _click_handler(self, k):
         def handler(mark, content):
@@ -113,6 +114,7 @@ class VerificationStrip:
         inside = np.flatnonzero((predicted > lo + margin) & (predicted < hi - margin))
         chosen = inside[np.argsort(-strength[inside], kind="stable")][: self.n_panels]
         chosen = chosen[np.argsort(predicted[chosen])]
+        jobs = []
         for k, p in enumerate(self.panels):
             if k >= chosen.size:
                 p["line"] = None
@@ -122,19 +124,43 @@ class VerificationStrip:
             i = int(chosen[k])
             p["line"] = i
             p["fig"].layout.visibility = "visible"
-            self._draw_panel(p, i, predicted[i], n, convention, fits.get(i))
+            jobs.append(self._cut(p, i, predicted[i], n, fits.get(i)))
+        if jobs:
+            # one velocity conversion for every panel's data and fit
+            xs = np.concatenate([np.concatenate([j["x"], j["fx"]]) for j in jobs])
+            cs = np.concatenate([np.full(j["x"].size + j["fx"].size, j["centre"]) for j in jobs])
+            v_all = velocity_from(xs * self._unit, cs * self._unit, convention=convention).to_value(_KMS)
+            start = 0
+            for j in jobs:
+                m, f = j["x"].size, j["fx"].size
+                self._draw_panel(j, n, v_all[start:start + m], v_all[start + m:start + m + f])
+                start += m + f
         self.title.value = (f'<span style="font-size:12px"><b>Check</b>: the strongest predicted lines in '
                             f"range, &plusmn;{n:.0f} km/s about each predicted position "
                             f"(<span style='color:{PALETTE['computed']}'>dashed</span> = zero); "
                             f"a right identification sits on the zero line. Click a panel to lock "
                             f"its line.</span>")
 
-    def _draw_panel(self, p, i, centre, n, convention, fit):
-        rest, labels, _ = self.lines
+    def _cut(self, p, i, centre, n, fit):
+        """The data (decimated) and the fit model around one predicted position, in ``unit``."""
         span = centre * 1.3 * n / _C_KMS
         x, y = self._pyramid.window(centre - span, centre + span, self._panel_px)
-        v = velocity_from(x * self._unit, centre * self._unit, convention=convention).to_value(_KMS)
-        title = f"{labels[i]}"
+        fx = fy = np.zeros(0)
+        if fit is not None and x.size:
+            w0, w1 = sorted(fit.window.to_value(self._unit, equivalencies=u.spectral()))
+            lo, hi = max(w0, x[0]), min(w1, x[-1])       # the model holds only where it was fitted
+            if hi > lo:
+                key = (id(fit), lo, hi)
+                if self._fit_cache.get(p["fig"].model_id, (None,))[0] != key:
+                    fine = np.linspace(lo, hi, 200)
+                    model = np.asarray(fit.model_flux(fine * self._unit).value, dtype=float)
+                    self._fit_cache[p["fig"].model_id] = (key, fine, model)
+                _, fx, fy = self._fit_cache[p["fig"].model_id]
+        return dict(p=p, i=i, centre=centre, x=x, y=y, fx=fx, fy=fy)
+
+    def _draw_panel(self, job, n, v, fv):
+        p, rest_labels = job["p"], self.lines[1]
+        title = f"{rest_labels[job['i']]}"
         if p["fig"].title != title:
             p["fig"].title = title
         with p["vs"].hold_trait_notifications():
@@ -144,19 +170,13 @@ class VerificationStrip:
             p["fig"].axes[0].tick_values = ticks
         with p["catcher"].hold_sync():
             p["catcher"].x = [-n, n]
+        y = job["y"]
         with p["data"].hold_sync():
             p["data"].x, p["data"].y = (v, y) if v.size else ([0.0], [np.nan])
-        window = None
-        if fit is not None and x.size:
-            w0, w1 = sorted(fit.window.to_value(self._unit, equivalencies=u.spectral()))
-            window = (max(w0, x[0]), min(w1, x[-1]))     # the model holds only where it was fitted
-        if window is not None and window[1] > window[0]:
-            fine = np.linspace(window[0], window[1], 200)
-            fv = velocity_from(fine * self._unit, centre * self._unit, convention=convention).to_value(_KMS)
-            fy = np.asarray(fit.model_flux(fine * self._unit).value, dtype=float)
+        if fv.size:
             with p["fit"].hold_sync():
-                p["fit"].x, p["fit"].y = fv, fy
-            y = np.concatenate([y, fy])
+                p["fit"].x, p["fit"].y = fv, job["fy"]
+            y = np.concatenate([y, job["fy"]])
         elif np.isfinite(np.asarray(p["fit"].x, dtype=float)).any():
             with p["fit"].hold_sync():
                 p["fit"].x, p["fit"].y = [np.nan], [np.nan]
