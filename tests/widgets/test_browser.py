@@ -1,7 +1,9 @@
-"""The galaxy notebook in a real JupyterLab + headless Chromium: the slider moves the predicted lines,
-a click in identify mode locks a line, the rest-frame axis shows, a picked scan candidate moves z
-(checked in the kernel itself)."""
+"""The galaxy notebook in a real JupyterLab + headless Chromium: Run All keeps the solved z exactly,
+the slider drags and an exact z typed lands, a click on a line locks it and a click on empty
+continuum does not, undo, a refused overwrite; screenshots of the main view and of the
+verification strip go to tests/artifacts/ (the main one also to docs/widget.png)."""
 
+import json
 import re
 import shutil
 import time
@@ -16,10 +18,16 @@ NOTEBOOK = REPO / "notebooks" / "galaxy_redshift.ipynb"
 ARTIFACTS = REPO / "tests" / "artifacts"
 FIG = ".bqplot.figure.zline-plot"
 
-# every predicted-line mark is a Lines mark named "lines-<origin>-<strong|weak>"
-ALL_MARKERS = """(fig) => [...document.querySelectorAll(fig + ' svg.svg-figure g.curve')]
+# every predicted-line guide is a Lines mark named "lines-<origin>-<strong|weak>"
+ALL_GUIDES = """(fig) => [...document.querySelectorAll(fig + ' svg.svg-figure g.curve')]
     .filter(g => (g.querySelector('text.curve_label')?.textContent || '').startsWith('lines-'))
     .map(g => g.querySelector('path.line').getAttribute('d') || '').join('|')"""
+
+# page coordinates of a data x in the plot area (the x scale's min/max map onto its width)
+PAGE_X = """([fig, x, lo, hi]) => {
+  const r = document.querySelector(fig + ' rect.plotarea_background').getBoundingClientRect();
+  return {x: r.left + (x - lo) / (hi - lo) * r.width, y: r.top + 0.8 * r.height};
+}"""
 
 
 @pytest.fixture
@@ -34,7 +42,7 @@ def lab_root(tmp_path):
 
 
 def kernel_eval(server, expression, timeout=60):
-    """Evaluate an expression in the notebook's kernel through its connection file."""
+    """Evaluate an expression in the notebook's kernel through its connection file (repr text)."""
     from jupyter_client import BlockingKernelClient
     end = time.monotonic() + timeout
     files = []
@@ -56,86 +64,101 @@ def kernel_eval(server, expression, timeout=60):
         client.stop_channels()
 
 
-# vertex of the marker path nearest the middle of the plot area, in page (client) coordinates
-PICK_VERTEX = """(fig) => {
-  const area = document.querySelector(fig + ' rect.plotarea_background').getBoundingClientRect();
-  let best = null;
-  for (const g of document.querySelectorAll(fig + ' svg.svg-figure g.curve')) {
-    if (!(g.querySelector('text.curve_label')?.textContent || '').startsWith('lines-')) continue;
-    const path = g.querySelector('path.line');
-    const m = path.getScreenCTM();
-    for (const p of (path.getAttribute('d') || '').matchAll(/M\\s*([-\\d.eE+]+)[ ,]([-\\d.eE+]+)/g)) {
-      const q = new DOMPoint(parseFloat(p[1]), parseFloat(p[2])).matrixTransform(m);
-      if (q.x < area.left + 20 || q.x > area.right - 20) continue;
-      const score = Math.abs(q.x - (area.left + area.right) / 2);
-      if (best === null || score < best.score) best = {x: q.x, score: score};
-    }
-  }
-  return best && {x: best.x, y: area.top + 0.6 * area.height};
-}"""
+def kernel_json(server, expression):
+    return json.loads(eval(kernel_eval(server, f"__import__('json').dumps({expression})")))  # noqa: S307
 
 
-def test_slider_moves_lines_and_click_locks(lab_server, page):
+def wait_kernel(server, expression, what, timeout=60):
+    end = time.monotonic() + timeout
+    while kernel_eval(server, expression) != "True":
+        assert time.monotonic() < end, what
+        time.sleep(0.3)
+
+
+def click_at_data_x(page, server, x):
+    page.locator(FIG).scroll_into_view_if_needed()
+    lo, hi = kernel_json(server, "w.plot.view_range()")
+    point = page.evaluate(PAGE_X, [FIG, x, lo, hi])
+    page.mouse.click(point["x"], point["y"])
+
+
+def test_widget_in_jupyterlab(lab_server, page):
     page.goto(f"{lab_server.url}/lab/tree/{NOTEBOOK.name}?token={lab_server.token}")
     page.locator(".jp-StatusBar-TextItem", has_text=re.compile(r"ipykernel\) \| Idle")).wait_for(timeout=120_000)
     page.evaluate("() => window.jupyterapp.commands.execute('notebook:run-all-cells')")
-    # the plot, or an error in the notebook output (then fail at once, showing it)
     shown = page.locator(f"{FIG} svg.svg-figure g.curve path.line, "
                          ".jp-OutputArea-output[data-mime-type='application/vnd.jupyter.stderr']")
     shown.first.wait_for(state="attached", timeout=120_000)
     errors = page.locator(".jp-OutputArea-output[data-mime-type='application/vnd.jupyter.stderr']")
     assert errors.count() == 0, errors.first.inner_text()[-2000:]
-    page.wait_for_function(f"() => ({ALL_MARKERS})({FIG!r}).length > 40", timeout=120_000)
-    before = page.evaluate(ALL_MARKERS, FIG)
+    page.wait_for_function(f"() => ({ALL_GUIDES})({FIG!r}).length > 40", timeout=120_000)
+    wait_kernel(lab_server, "w._solution is not None", "the notebook never solved z", timeout=120)
 
-    page.locator(".zline-z .noUi-handle").focus()
-    for _ in range(8):
-        page.keyboard.press("ArrowRight")
-    page.wait_for_function(f"(old) => ({ALL_MARKERS})({FIG!r}) !== old", arg=before, timeout=60_000)
-    assert page.evaluate(ALL_MARKERS, FIG) != before
-    assert float(kernel_eval(lab_server, "w.z")) > 0.0
+    # --- Run All keeps the solved z: every control has rendered and had its chance to echo
+    page.locator(".zline-z .noUi-handle").wait_for(timeout=60_000)
+    time.sleep(3.0)
+    z_solved = float(kernel_eval(lab_server, "w._solution.z"))
+    assert abs(float(kernel_eval(lab_server, "w.z")) - z_solved) < 1e-9
+    readout = kernel_eval(lab_server, "w.format_z(w.z)").strip("'")
+    page.wait_for_function("(t) => document.querySelector('.zline-ztext input')?.value === t", arg=readout)
 
-    page.locator(".zline-mode button", has_text=re.compile(r"^\s*identify\s*$")).click()
-    end = time.monotonic() + 60
-    while kernel_eval(lab_server, "w.mode") != "'identify'":
-        assert time.monotonic() < end, "identify mode never reached the kernel"
-        time.sleep(0.3)
-    # the notebook's later cells lock lines from code: drop those locks so that only the click can
-    # make one, and the drawn locked mark must come from it
-    kernel_eval(lab_server, "[w.unlock(0) for _ in range(len(w.locks))]")
+    # --- screenshots at the solved z: the whole view and the verification strip
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.locator(".zline-view").scroll_into_view_if_needed()
+    page.wait_for_function("() => document.querySelectorAll('.zline-strip .zline-panel svg path.line').length >= 6")
+    time.sleep(1.0)
+    page.locator(".zline-view").screenshot(path=str(ARTIFACTS / "widget.png"))
+    page.locator(".zline-strip").screenshot(path=str(ARTIFACTS / "strip.png"))
+    shutil.copy(ARTIFACTS / "widget.png", REPO / "docs" / "widget.png")
+
+    # --- drag the slider: z and the drawn guides move
+    before = page.evaluate(ALL_GUIDES, FIG)
+    handle = page.locator(".zline-z .noUi-handle").bounding_box()
+    page.mouse.move(handle["x"] + handle["width"] / 2, handle["y"] + handle["height"] / 2)
+    page.mouse.down()
+    page.mouse.move(handle["x"] + handle["width"] / 2 + 60, handle["y"] + handle["height"] / 2, steps=8)
+    page.mouse.up()
+    page.wait_for_function(f"(old) => ({ALL_GUIDES})({FIG!r}) !== old", arg=before, timeout=60_000)
+    wait_kernel(lab_server, f"w.z > {z_solved!r} + 1e-5", "dragging the slider never raised z")
+
+    # --- type an exact z: it lands exactly, and the readout shows it
+    box = page.locator(".zline-ztext input")
+    box.click()
+    box.fill("0.0733985")
+    box.press("Enter")
+    box.blur()                     # the value is sent when the box commits its text
+    wait_kernel(lab_server, "w.z == 0.0733985", "the typed z never arrived exactly")
+    time.sleep(1.0)
+    assert kernel_eval(lab_server, "w.z") == "0.0733985"          # no slider echo rounded it
+    assert box.input_value() == "0.0733985"
+
+    # --- lock mode: a click on Hα locks it, a click on empty continuum does not
+    page.locator(".zline-mode button", has_text=re.compile(r"^\s*lock\s*$")).click()
+    wait_kernel(lab_server, "w.mode == 'lock'", "lock mode never reached the kernel")
+    kernel_eval(lab_server, "[w.unlock(0) for _ in range(len(w.locks))]")   # the notebook's own locks
     assert int(kernel_eval(lab_server, "len(w.locks)")) == 0
-    page.wait_for_function(
-        """(fig) => ![...document.querySelectorAll(fig + ' g.curve')]
-             .some(g => g.querySelector('text.curve_label')?.textContent === 'locked'
-                        && /M\\s*[\\d.]/.test(g.querySelector('path.line').getAttribute('d') || ''))""",
-        arg=FIG, timeout=60_000)
-    point = page.evaluate(PICK_VERTEX, FIG)
-    assert point is not None, "no predicted line inside the plot area"
-    page.mouse.click(point["x"] + 2, point["y"])
+    halpha = kernel_json(lab_server, "float(w.observed_positions()[list(w._labels).index('Hα')].value)")
+    click_at_data_x(page, lab_server, halpha + 1.0)
+    wait_kernel(lab_server, "[k.label for k in w.locks] == ['Hα']", "a click on Hα did not lock it")
     page.wait_for_function(
         """(fig) => [...document.querySelectorAll(fig + ' g.curve')]
              .some(g => g.querySelector('text.curve_label')?.textContent === 'locked'
                         && /M\\s*[\\d.]/.test(g.querySelector('path.line').getAttribute('d') || ''))""",
         arg=FIG, timeout=60_000)
-    assert int(kernel_eval(lab_server, "len(w.locks)")) >= 1
+    click_at_data_x(page, lab_server, 8250.0)                       # continuum, no predicted line near
+    page.locator(".zline-status", has_text="nothing locked").wait_for(timeout=60_000)
+    assert int(kernel_eval(lab_server, "len(w.locks)")) == 1
 
-    # the rest-frame axis appears on top when its box is ticked
-    page.locator(".zline-rest-axis input[type=checkbox]").check()
-    page.wait_for_function(
-        """(fig) => [...document.querySelectorAll(fig + ' svg text')]
-             .some(t => /^rest wavelength/.test(t.textContent || ''))""", arg=FIG, timeout=60_000)
-    assert kernel_eval(lab_server, "w.rest_axis") == "True"
+    # --- undo takes the lock back
+    page.locator(".zline-undo button, button.zline-undo").first.click()
+    wait_kernel(lab_server, "len(w.locks) == 0", "undo did not remove the lock")
 
-    # the candidate scan fills the list; picking an entry moves z there
-    page.locator("button", has_text=re.compile(r"^\s*find candidates\s*$")).click()
-    options = page.locator(".zline-candidates select option")
-    options.first.wait_for(state="attached", timeout=60_000)
-    assert "score" in options.first.inner_text()
-    page.locator(".zline-candidates select").select_option(index=0)
-    end = time.monotonic() + 60
-    while kernel_eval(lab_server, "abs(w.z - w.candidates[0].z) < 1e-12") != "True":
-        assert time.monotonic() < end, "picking a candidate never moved z in the kernel"
-        time.sleep(0.3)
-    ARTIFACTS.mkdir(exist_ok=True)
-    page.locator(FIG).scroll_into_view_if_needed()
-    page.screenshot(path=str(ARTIFACTS / "widget.png"), full_page=True)
+    # --- a refused overwrite: the first press on an existing file writes nothing
+    kernel_eval(lab_server, "open('taken.json', 'w').write('keep me')")
+    path_box = page.locator(".zline-save-path input")
+    path_box.fill("taken.json")
+    path_box.press("Enter")
+    wait_kernel(lab_server, "w.ui.save_path.value == 'taken.json'", "the file name never reached the kernel")
+    page.locator("button.zline-save").click()
+    page.locator(".zline-status", has_text="press 'save' again").wait_for(timeout=60_000)
+    assert (lab_server.root / "taken.json").read_text() == "keep me"

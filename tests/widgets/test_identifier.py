@@ -17,6 +17,7 @@ from zline.widgets._marks import marker_arrays, stagger_labels, thin_labels
 # the invented scenario of conftest.spectrum: four lines at z = 0.1
 TRUE_Z = 0.1
 REST = np.array([4862.7, 5008.2, 6564.6, 6585.3])
+AMPLITUDE = np.array([1.0, 3.0, 5.0, 1.5])
 
 
 def frontend_update(widget, **state):
@@ -32,7 +33,7 @@ def frontend_custom(widget, content):
 
 
 def click(w, x):
-    frontend_custom(w._catcher, {"event": "element_click", "data": {"click_x": float(x), "click_y": 1.0}})
+    frontend_custom(w.plot.catcher, {"event": "element_click", "data": {"click_x": float(x), "click_y": 1.0}})
 
 
 @pytest.fixture
@@ -42,35 +43,36 @@ def w(spectrum, lines):
 
 def marker_positions(w):
     """Observed positions drawn by every predicted-line mark, sorted (NaN separators dropped)."""
-    xs = np.concatenate([np.asarray(g.marker.x, float) for g in w._groups])
+    xs = np.concatenate([np.asarray(g["guide"].x, float) for g in w.plot.groups])
     return np.unique(xs[np.isfinite(xs)])
 
 
 # ------------------------------------------------------------------ traits and controls
 def test_traits_follow_controls_and_back(w):
-    frontend_update(w._slider, value=0.105)
+    frontend_update(w.ui.slider, value=0.0055)   # the slider moves z from its anchor (0.0995)
     assert w.z == pytest.approx(0.105)
-    assert w._z_text.value == pytest.approx(0.105)
-    frontend_update(w._z_text, value=0.1012345)
-    assert w.z == pytest.approx(0.1012345)
-    assert w._slider.value == pytest.approx(0.1012345)
+    assert w.ui.z_text.value == w.format_z(w.z)
+    assert w.ui.slider.value == 0.0055           # a drag is not recentred under the pointer
+    frontend_update(w.ui.z_text, value="0.1012345")
+    assert w.z == 0.1012345                      # typed: exactly, not rounded to a slider step
+    assert w.ui.slider.value == 0.0 and w._anchor == 0.1012345
     w.velocity = 250.0
-    assert w._v_text.value == 250.0
-    frontend_update(w._v_text, value=-80.0)
+    assert w.ui.v_text.value == 250.0
+    frontend_update(w.ui.v_text, value=-80.0)
     assert w.velocity == -80.0
-    frontend_update(w._conv, index=list(w._conv.options).index("relativistic"))
+    frontend_update(w.ui.conv, index=list(w.ui.conv.options).index("relativistic"))
     assert w.convention == "relativistic"
-    w.z = 3.7                                   # beyond the coarse range: the slider widens
-    assert w._slider.value == pytest.approx(3.7) and w._slider.max >= 3.7
+    w.z = 3.7                                   # any z from code: the slider recentres on it
+    assert w.ui.slider.value == 0.0 and w._anchor == 3.7 and w.ui.slider.min < 0 < w.ui.slider.max
 
 
 def test_observer_fires_once_per_change(w):
     seen = mock.Mock()
     w.observe(seen, names="z")
-    frontend_update(w._slider, value=0.2)
+    frontend_update(w.ui.slider, value=0.02)
     seen.assert_called_once()
-    assert seen.call_args[0][0]["new"] == pytest.approx(0.2)
-    frontend_update(w._slider, value=0.2)      # same value again: no new event
+    assert seen.call_args[0][0]["new"] == pytest.approx(0.1195)
+    frontend_update(w.ui.slider, value=0.02)     # same value again: no new event
     seen.assert_called_once()
 
 
@@ -83,16 +85,27 @@ def test_bad_convention_and_bare_numbers_are_refused(w, spectrum, lines):
         w.lock(near=7220.0)
 
 
-def test_fine_toggle_narrows_slider_around_z(w):
+def test_slider_step_follows_the_visible_range(w):
     w.z = 0.1
-    coarse = w._slider.max - w._slider.min
-    w._fine.value = True
-    fine = w._slider.max - w._slider.min
+    coarse = w.ui.slider.step
+    # dragging across the whole slider moves a line across the whole view (5000 A here)
+    assert 6564.6 * (w.ui.slider.max - w.ui.slider.min) / 1.1 == pytest.approx(5000.0, rel=0.05)
+    frontend_update(w.plot.xs, min=7200.0, max=7240.0)     # zoom onto one line
+    fine = w.ui.slider.step
     assert fine < coarse / 50
-    assert w._slider.min < 0.1 < w._slider.max
-    assert w._slider.step < 1e-4
-    w._fine.value = False
-    assert w._slider.max - w._slider.min == pytest.approx(coarse)
+    # one step moves a line by a small fraction of a spectrum pixel (0.25 A here)
+    assert 6564.6 * fine < 0.1 * 0.25
+    assert w.ui.slider.value == 0.0 and w._anchor == w.z == 0.1
+
+
+def test_a_typed_z_far_away_lands_exactly(w):
+    frontend_update(w.plot.xs, min=7200.0, max=7240.0)     # narrow slider window
+    for text in ("0.5", "0.0733985", "2.3456789012"):
+        frontend_update(w.ui.z_text, value=text)
+        assert w.z == float(text) and w._anchor == w.z and w.ui.slider.value == 0.0
+    frontend_update(w.ui.z_text, value="not a number")
+    assert w.z == 2.3456789012 and "Problem" in w.status
+    assert w.ui.z_text.value == w.format_z(w.z)
 
 
 def test_medium_is_required_when_the_spectrum_does_not_say(spectrum, lines):
@@ -100,7 +113,7 @@ def test_medium_is_required_when_the_spectrum_does_not_say(spectrum, lines):
     with pytest.raises(ValueError, match="medium='air' or medium='vacuum'"):
         LineIdentifier(spectrum, lines=lines)
     w = LineIdentifier(spectrum, lines=lines, medium="air")
-    assert "air" in w._xaxis.label and "Å" in w._xaxis.label
+    assert "air" in w.plot.xaxis.label and "Å" in w.plot.xaxis.label
 
 
 # ------------------------------------------------------------------ overlay
@@ -113,32 +126,54 @@ def test_markers_sit_at_the_physics_positions(w):
         assert_quantity_allclose(np.sort(w.observed_positions()), np.sort(expected), rtol=1e-12)
 
 
-def test_z_change_sends_only_x_of_marker_and_label_marks(sent, spectrum, lines):
+def strip_ids(w):
+    ids = set()
+    for p in w.strip.panels:
+        for key in ("fig", "vs", "ys", "data", "fit", "catcher"):
+            ids.add(p[key].comm.comm_id)
+        ids.add(p["fig"].layout.comm.comm_id)
+    return ids | {w.strip.title.comm.comm_id}
+
+
+def test_z_change_sends_only_x_of_the_line_marks(sent, spectrum, lines):
     w = LineIdentifier(spectrum, lines=lines, z=0.098)
-    allowed = {g.marker.comm.comm_id for g in w._groups} | {g.label.comm.comm_id for g in w._groups}
+    allowed = {g[k].comm.comm_id for g in w.plot.groups for k in ("guide", "tick", "label")}
     sent.clear()
-    w.z = 0.0985                                # small move: labels keep their thinning
+    w.z = 0.0985                                # small move: labels keep their rows
     updates = [(cid, d) for cid, kind, d, _ in sent if d and d.get("method") == "update"]
     assert updates, "a z change must reach the frontend"
     for cid, d in updates:
         if cid in allowed:
             assert set(d["state"]) == {"x"}, d["state"].keys()
     assert {cid for cid, _ in updates if cid in allowed} == allowed
-    other = [d["state"].keys() for cid, d in updates if cid not in allowed]
-    # the only other widgets allowed to change are the z controls themselves
-    ctrl = {w._slider.comm.comm_id, w._z_text.comm.comm_id}
-    assert all(cid in ctrl for cid, d in updates if cid not in allowed), other
+    # the only other widgets allowed to change are the z controls and the verification strip
+    ctrl = {w.ui.slider.comm.comm_id, w.ui.z_text.comm.comm_id} | strip_ids(w)
+    other = [(cid, d["state"].keys()) for cid, d in updates if cid not in allowed | ctrl]
+    assert not other, other
 
 
 def test_one_nan_separated_mark_per_style_group(w):
-    keys = [g.key for g in w._groups]
+    keys = [g["key"] for g in w.plot.groups]
     assert sorted(keys) == [("computed", False), ("computed", True), ("tabulated", False), ("tabulated", True)]
-    strong = {g.key: g.marker.stroke_width for g in w._groups}
-    assert strong[("computed", True)] > strong[("computed", False)]
-    assert w._groups[0].marker.colors != [g for g in w._groups if g.key[0] != w._groups[0].key[0]][0].marker.colors
-    for g in w._groups:
-        x = np.asarray(g.marker.x)
-        assert x.ndim == 1 and np.isnan(x[2::3]).all() and x.size == 3 * g.index.size
+    style = {g["key"]: g["guide"].line_style for g in w.plot.groups}
+    assert style[("computed", True)] == "solid" and style[("computed", False)] == "dashed"
+    colours = {g["key"][0]: tuple(g["guide"].colors) for g in w.plot.groups}
+    assert colours["computed"] != colours["tabulated"]
+    for g in w.plot.groups:
+        x = np.asarray(g["guide"].x)
+        assert x.ndim == 1 and np.isnan(x[2::3]).all() and x.size == 3 * g["index"].size
+
+
+def test_the_data_are_drawn_on_top_of_thin_translucent_guides(w):
+    marks = list(w.figure.marks)
+    top = marks.index(w.plot.line)
+    for g in w.plot.groups:
+        assert marks.index(g["guide"]) < top              # guides beneath the spectrum
+        assert g["guide"].stroke_width <= 1.0 and g["guide"].opacities[0] <= 0.5
+        assert g["label"] in w.plot.band_figure.marks     # labels in their own band, not over the data
+        assert g["label"] not in marks
+    assert marks.index(w.plot.band) < top and w.plot.band.fill_opacities[0] >= 0.5
+    assert "locked" in w.plot.key.value and "computed" in w.plot.key.value
 
 
 def test_labels_thin_out_and_keep_the_strongest():
@@ -157,35 +192,37 @@ def test_marker_arrays_are_vertical_segments():
     assert np.isnan(x[[2, 5]]).all() and np.isnan(y[[2, 5]]).all()
 
 
-def test_zoom_redecimates_and_shows_masked_pixels(w, spectrum):
-    full = np.asarray(w._line.x).size
-    assert full <= 2 * w._plot_px + 8           # decimated, not 20000 points
-    frontend_update(w._xs, min=5200.0, max=5300.0)
-    x = np.asarray(w._line.x)
+def test_zoom_redecimates_and_shades_masked_pixels(w, spectrum):
+    full = np.asarray(w.plot.line.x).size
+    assert full <= 2 * w.plot.plot_px + 8           # decimated, not 20000 points
+    frontend_update(w.plot.xs, min=5200.0, max=5300.0)
+    x = np.asarray(w.plot.line.x)
     assert x.min() >= 5200.0 - 1 and x.max() <= 5300.0 + 1
     axis = spectrum.spectral_axis.value
     inside = (axis >= 5200.0) & (axis <= 5300.0)
     assert x.size == inside.sum()               # fewer pixels than screen columns: every pixel shown
     masked_x = axis[spectrum.mask]
-    np.testing.assert_allclose(np.sort(w._masked.x), masked_x[(masked_x >= 5200) & (masked_x <= 5300)])
-    band = np.asarray(w._band.y)
+    sx = np.asarray(w.plot.shade_masked.x)
+    sy = np.asarray(w.plot.shade_masked.y)
+    assert sx.min() < masked_x.min() and sx.max() > masked_x.max() and sy[1].max() == 1.0
+    band = np.asarray(w.plot.band.y)
     assert band.shape[0] == 2 and np.nanmin(band[1] - band[0]) > 0
-    assert w._catcher.x.tolist() == [5200.0, 5300.0]
+    assert w.plot.catcher.x.tolist() == [5200.0, 5300.0]
 
 
 def test_zoom_to_line(w):
     w.zoom_to("L6565")
     centre = 6564.6 * kinematics.shift_factor(w.z, 0 * u.km / u.s, "optical")
-    assert w._xs.min < centre < w._xs.max
-    assert w._xs.max - w._xs.min < 100
+    assert w.plot.xs.min < centre < w.plot.xs.max
+    assert w.plot.xs.max - w.plot.xs.min < 100
 
 
 # ------------------------------------------------------------------ locking
-def test_click_in_identify_mode_locks_at_a_fitted_centroid(w):
+def test_click_in_lock_mode_locks_at_a_fitted_centroid(w):
     click(w, 7219.0)                            # pan/zoom mode: a click does nothing
     assert len(w.locks) == 0
-    frontend_update(w._mode, index=list(w._mode.options).index("identify"))
-    assert w.mode == "identify" and w.figure.interaction is None
+    frontend_update(w.ui.mode, index=list(w.ui.mode.options).index("lock"))
+    assert w.mode == "lock" and w.figure.interaction is None
     click(w, 7219.0)
     assert len(w.locks) == 1
     lock = w.locks[0]
@@ -195,7 +232,9 @@ def test_click_in_identify_mode_locks_at_a_fitted_centroid(w):
     assert abs(lock.observed.to_value(u.AA) - truth) < 5 * lock.observed_err.to_value(u.AA) + 0.01
     assert abs(lock.observed.to_value(u.AA) - 7219.0) > 1.0   # snapped, not the raw click
     w.mode = "pan/zoom"
-    assert w.figure.interaction is w._panzoom
+    assert w.figure.interaction is w.plot.panzoom
+    w.mode = "y only"
+    assert w.figure.interaction is w.plot.yzoom and list(w.plot.yzoom.scales) == ["y"]
 
 
 def test_failed_fit_falls_back_with_a_warning(w):
@@ -208,13 +247,16 @@ def test_failed_fit_falls_back_with_a_warning(w):
 def test_locks_persist_when_z_moves(w):
     w.lock(near=7221 * u.AA)
     w.lock(near=5509 * u.AA)
-    before = np.asarray(w._locked.x).copy()
+    before = np.asarray(w.plot.locked_top.x).copy()
     markers_before = marker_positions(w)
     w.z = 0.5
     assert len(w.locks) == 2
-    np.testing.assert_array_equal(np.asarray(w._locked.x), before)
-    assert not np.allclose(marker_positions(w), markers_before)
-    assert list(w._locked_labels.text) == ["L6565", "L5008"]
+    np.testing.assert_array_equal(np.asarray(w.plot.locked_top.x), before)
+    after = marker_positions(w)                 # lines that left the view are not drawn
+    assert after.size != markers_before.size or not np.allclose(after, markers_before)
+    expected = REST * 1.5
+    np.testing.assert_allclose(after, np.sort(expected[(expected >= 4000) & (expected <= 9000)]), rtol=1e-12)
+    assert list(w.plot.locked_labels.text) == ["L6565", "L5008"]
 
 
 def test_relock_replaces_unlock_and_annotate(w):
@@ -241,7 +283,8 @@ def test_solve_sets_z_and_shows_sigma(w):
     assert w.z == z
     assert abs(z - TRUE_Z) < 5 * z_err + 1e-6
     assert 0 < z_err < 1e-4
-    assert "&sigma;" in w._results.value and "residual" in w._results.value
+    shown = " ".join(c.value for c in w.ui.lock_table.children if hasattr(c, "value"))
+    assert "&sigma;" in shown and "residual" in shown
 
 
 def test_table_has_one_row_per_lock(w):
@@ -266,12 +309,12 @@ def test_table_has_one_row_per_lock(w):
 
 # ------------------------------------------------------------------ errors in the widget
 def test_upload_of_bytes_that_are_not_fits_shows_a_plain_error(w):
-    frontend_update(w._upload, value=[{"name": "notes.fits", "type": "application/fits", "size": 20,
+    frontend_update(w.ui.upload, value=[{"name": "notes.fits", "type": "application/fits", "size": 20,
                                        "content": memoryview(b"this is not a FITS file"),
                                        "last_modified": 1764633600000}])
     assert "Problem" in w.status and "could not open" in w.status
     assert "Traceback" not in w.status
-    assert np.asarray(w._line.x).size > 0       # the old spectrum stays on screen
+    assert np.asarray(w.plot.line.x).size > 0       # the old spectrum stays on screen
 
 
 # ------------------------------------------------------------------ files, line sets, sessions
@@ -279,18 +322,18 @@ def test_opens_a_fits_path_with_a_named_line_set(spectrum_file):
     from zline.physics import catalog
     w = LineIdentifier(spectrum_file, lines="galaxy-emission", z=0.1)
     table = catalog.line_set("galaxy-emission", medium="vacuum", unit=u.AA)
-    assert sum(g.index.size for g in w._groups) == len(table)
-    assert {g.key[0] for g in w._groups} <= set(table["origin"])
-    assert "vacuum" in w._xaxis.label
-    frontend_update(w._set_menu, index=list(w._set_menu.options).index("hydrogen"))
-    assert sum(g.index.size for g in w._groups) == len(catalog.line_set("hydrogen"))
-    assert all(g.marker in w.figure.marks for g in w._groups)
+    assert sum(g["index"].size for g in w.plot.groups) == len(table)
+    assert {g["key"][0] for g in w.plot.groups} <= set(table["origin"])
+    assert "vacuum" in w.plot.xaxis.label
+    frontend_update(w.ui.set_menu, index=list(w.ui.set_menu.options).index("hydrogen"))
+    assert sum(g["index"].size for g in w.plot.groups) == len(catalog.line_set("hydrogen"))
+    assert all(g["guide"] in w.figure.marks for g in w.plot.groups)
 
 
 def test_upload_of_a_good_fits_replaces_the_spectrum(w, spectrum_file):
     w.lock(near=7221 * u.AA)
     data = spectrum_file.read_bytes()
-    frontend_update(w._upload, value=[{"name": "new.fits", "type": "application/fits", "size": len(data),
+    frontend_update(w.ui.upload, value=[{"name": "new.fits", "type": "application/fits", "size": len(data),
                                        "content": memoryview(data), "last_modified": 1764633600000}])
     assert "opened new.fits" in w.status
     assert w.locks == ()                        # locks belonged to the previous spectrum
@@ -321,8 +364,8 @@ def test_save_and_restore_round_trip(tmp_path, spectrum_file, lines):
     for name in ("observed", "residual_kms", "fit_flux", "fit_fwhm", "fit_ew"):
         assert_quantity_allclose(t1[name], t0[name], equal_nan=True)
     assert t1["fitted"].tolist() == [True, True, False]
-    assert (r._xs.min, r._xs.max) == pytest.approx((w._xs.min, w._xs.max))
-    np.testing.assert_array_equal(np.asarray(r._locked.x), np.asarray(w._locked.x))
+    assert (r.plot.xs.min, r.plot.xs.max) == pytest.approx((w.plot.xs.min, w.plot.xs.max))
+    np.testing.assert_array_equal(np.asarray(r.plot.locked_top.x), np.asarray(w.plot.locked_top.x))
 
 
 def test_frequency_axis_divides_by_the_shift_and_absorption_locks_fit():
@@ -338,7 +381,7 @@ def test_frequency_axis_divides_by_the_shift_and_absorption_locks_fit():
     sp = Spectrum(spectral_axis=nu * u.GHz, flux=flux * u.mJy)
     lines = QTable({"label": ["A", "B"], "rest": rest, "strength": [1.0, 0.5]})
     w = LineIdentifier(sp, lines=lines, z=z, velocity=40 * u.km / u.s, convention="radio")
-    assert w._xaxis.label.startswith("observed frequency") and "vacuum" not in w._xaxis.label
+    assert w.plot.xaxis.label.startswith("observed frequency") and "vacuum" not in w.plot.xaxis.label
     expected = kinematics.observed_position(rest, z=z, velocity=40 * u.km / u.s, convention="radio")
     np.testing.assert_allclose(marker_positions(w), np.sort(expected.to_value(u.GHz)), rtol=1e-12)
     w.velocity = 0.0
@@ -379,56 +422,74 @@ def test_stagger_puts_close_neighbours_in_lower_rows_and_keeps_the_strongest():
         stagger_labels(pixels, strength, 14.0, rows=0)
 
 
-def test_visible_labels_of_one_row_keep_the_spacing(spectrum):
-    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.072, label_spacing=16.0)
+def label_extents(w):
+    """(row, left, right) in screen pixels of every label shown in the band, locks included."""
+    lo, hi = w.plot.view_range()
+    scale = w.plot.plot_px / (hi - lo)
+    out = []
+    for g in w.plot.groups:
+        for x, text, r in zip(g["label"].x, g["label"].text, w.plot.rows[g["shown"]]):
+            if text:
+                half = len(text) * 6.4 / 2
+                out.append((r, (x - lo) * scale - half, (x - lo) * scale + half))
+    for x, text, r in zip(w.plot.locked_labels.x, w.plot.locked_labels.text, w.plot.locked_rows):
+        if text:
+            half = len(text) * 6.4 / 2
+            out.append((r, (x - lo) * scale - half, (x - lo) * scale + half))
+    return out
+
+
+def assert_no_overlap(extents):
+    for r in {e[0] for e in extents}:
+        row = sorted((a, b) for rr, a, b in extents if rr == r)
+        for (a0, b0), (a1, b1) in zip(row, row[1:]):
+            assert a1 >= b0, (r, a0, b0, a1, b1)
+
+
+def test_labels_never_overlap_and_all_show_on_zoom(spectrum):
+    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.072)
     for lo, hi in [(3600.0, 9800.0), (3900.0, 4500.0), (4000.0, 9000.0)]:
-        with w._xs.hold_trait_notifications():
-            w._xs.min, w._xs.max = lo, hi
-        w._cull_labels(w._current_factor, force=True)
-        rows, px = w.label_rows(), w.label_pixels()
-        shown = [(r, p) for r, p in zip(rows, px) if r >= 0]
-        assert len({r for r, _ in shown}) >= 2, "a crowded view must use more than one row"
-        for r in range(3):
-            row_px = np.sort([p for rr, p in shown if rr == r])
-            if row_px.size > 1:
-                assert np.diff(row_px).min() >= 16.0
-        # what the marks draw agrees: text only where a row was given, y lower for lower rows
-        for g in w._groups:
-            text = list(g.label.text)
-            y = np.asarray(g.label.y, float)
-            for k, i in enumerate(g.index):
-                assert (text[k] != "") == (rows[i] >= 0)
-                if rows[i] > 0:
-                    assert y[k] < w._ys.max
-                elif rows[i] == 0:
-                    assert y[k] == pytest.approx(w._ys.max)
+        frontend_update(w.plot.xs, min=lo, max=hi)
+        extents = label_extents(w)
+        assert len({e[0] for e in extents}) >= 2, "a crowded view must use more than one row"
+        assert_no_overlap(extents)
+        y = {r: set() for r in range(w.plot.label_rows)}
+        for g in w.plot.groups:
+            for yy, r in zip(np.asarray(g["label"].y, float), w.plot.rows[g["shown"]]):
+                if r >= 0:
+                    y[r].add(yy)
+        assert all(len(v) <= 1 for v in y.values())        # one height per row
+    # zoomed onto Hα and [N II]: every line in view is labelled
+    frontend_update(w.plot.xs, min=7000.0, max=7080.0)
+    inside = (w.observed_positions().to_value(u.AA) > 7000) & (w.observed_positions().to_value(u.AA) < 7080)
+    assert inside.sum() >= 3 and (w.plot.rows[inside] >= 0).all()
 
 
 def test_a_locked_line_loses_its_predicted_label(w):
     i = int(np.flatnonzero(w._labels == "L6565")[0])
-    assert w.label_rows()[i] >= 0
+    assert w.plot.rows[i] >= 0
     w.lock(near=REST[2] * (1 + TRUE_Z) * u.AA)
-    assert w.label_rows()[i] == -1
+    assert w.plot.rows[i] == -1 and "L6565" in list(w.plot.locked_labels.text)
     w.unlock("L6565")
-    assert w.label_rows()[i] >= 0
+    assert w.plot.rows[i] >= 0
 
 
 # ------------------------------------------------------------------ rest-frame axis
 def test_rest_axis_follows_z_and_zoom(w):
-    assert w._rest_xaxis not in w.figure.axes
-    frontend_update(w._rest_toggle, value=True)
-    assert w.rest_axis and w._rest_xaxis in w.figure.axes and w._rest_xaxis.side == "top"
+    assert w.plot.rest_xaxis not in w.figure.axes
+    frontend_update(w.ui.rest_toggle, value=True)
+    assert w.rest_axis and w.plot.rest_xaxis in w.figure.axes and w.plot.rest_xaxis.side == "top"
     for z in (0.0995, 0.25):
         w.z = z
         factor = kinematics.shift_factor(z, 0 * u.km / u.s, "optical")
-        assert w._rest_xs.min == pytest.approx(w._xs.min / factor, rel=1e-12)
-        assert w._rest_xs.max == pytest.approx(w._xs.max / factor, rel=1e-12)
-    w._xs.min, w._xs.max = 5000.0, 5600.0                 # pan/zoom
-    assert w._rest_xs.min == pytest.approx(5000.0 / 1.25, rel=1e-12)
-    assert w._rest_xs.max == pytest.approx(5600.0 / 1.25, rel=1e-12)
-    assert "rest" in w._rest_xaxis.label
+        assert w.plot.rest_xs.min == pytest.approx(w.plot.xs.min / factor, rel=1e-12)
+        assert w.plot.rest_xs.max == pytest.approx(w.plot.xs.max / factor, rel=1e-12)
+    w.plot.xs.min, w.plot.xs.max = 5000.0, 5600.0                 # pan/zoom
+    assert w.plot.rest_xs.min == pytest.approx(5000.0 / 1.25, rel=1e-12)
+    assert w.plot.rest_xs.max == pytest.approx(5600.0 / 1.25, rel=1e-12)
+    assert "rest" in w.plot.rest_xaxis.label
     w.rest_axis = False
-    assert w._rest_xaxis not in w.figure.axes and not w._rest_toggle.value
+    assert w.plot.rest_xaxis not in w.figure.axes and not w.ui.rest_toggle.value
 
 
 def test_rest_axis_multiplies_on_a_frequency_axis():
@@ -440,8 +501,8 @@ def test_rest_axis_multiplies_on_a_frequency_axis():
     w = LineIdentifier(sp, lines=table, velocity=300 * u.km / u.s, convention="radio")
     w.rest_axis = True
     factor = kinematics.shift_factor(0.0, 300 * u.km / u.s, "radio")
-    assert w._rest_xs.min == pytest.approx(x[0] * factor, rel=1e-12)
-    assert w._rest_xs.max == pytest.approx(x[-1] * factor, rel=1e-12)
+    assert w.plot.rest_xs.min == pytest.approx(x[0] * factor, rel=1e-12)
+    assert w.plot.rest_xs.max == pytest.approx(x[-1] * factor, rel=1e-12)
 
 
 # ------------------------------------------------------------------ candidate scan
@@ -452,25 +513,25 @@ def test_scan_lists_candidates_and_a_click_jumps(spectrum):
     direct = scan_mod.scan_redshift(spectrum, lines="galaxy-emission", z_min=0.0, z_max=1.0, top=4)
     assert [c.z for c in result.candidates] == pytest.approx([c.z for c in direct.candidates])
     assert result.candidates[0].z == pytest.approx(TRUE_Z, abs=1e-3)
-    options = w._candidates.options
+    options = w.ui.candidates.options
     assert len(options) == len(result.candidates)
     assert f"z={result.candidates[1].z:.5f}" in options[1][0] and "lines" in options[1][0]
-    assert w._scan_progress.value == w._scan_progress.max
-    frontend_update(w._candidates, index=1)                 # a click on the second candidate
+    assert w.ui.scan_progress.value == w.ui.scan_progress.max
+    frontend_update(w.ui.candidates, index=1)                 # a click on the second candidate
     assert w.z == pytest.approx(result.candidates[1].z)
     c = w.jump_to(0)
-    assert w.z == pytest.approx(c.z) and w.velocity == 0.0 and w._candidates.value == 0
+    assert w.z == pytest.approx(c.z) and w.velocity == 0.0 and w.ui.candidates.value == 0
     with pytest.raises(IndexError):
         w.jump_to(len(result.candidates))
 
 
 def test_scan_button_and_plain_errors(spectrum, lines):
     w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.0)
-    w._scan_min.value, w._scan_max.value = 0.05, 0.2
-    w._scan_button.click()
+    w.ui.scan_min.value, w.ui.scan_max.value = 0.05, 0.2
+    w.ui.scan.click()
     assert w.candidates and w.candidates[0].z == pytest.approx(TRUE_Z, abs=1e-3)
-    w._scan_min.value, w._scan_max.value = 0.5, 0.2
-    w._scan_button.click()
+    w.ui.scan_min.value, w.ui.scan_max.value = 0.5, 0.2
+    w.ui.scan.click()
     assert "Problem" in w.status and "z_min" in w.status
     custom = LineIdentifier(spectrum, lines=lines)
     with pytest.raises(ValueError, match="custom"):
@@ -480,17 +541,22 @@ def test_scan_button_and_plain_errors(spectrum, lines):
 
 
 def test_scan_near_zero_searches_velocity(spectrum):
-    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.0)
-    with mock.patch("zline.physics.scan.scan_velocity", wraps=__import__(
-            "zline.physics.scan", fromlist=["scan_velocity"]).scan_velocity) as spy:
-        try:
-            w.scan(z_min=-0.002, z_max=0.002, top=2)
-        except ValueError:
-            pass        # no line of the invented spectrum near z = 0 is allowed to be an error
-    (args, kwargs), = spy.call_args_list
-    expected = kinematics.velocity_from(1.002 * u.AA, 1 * u.AA, convention="optical")
-    assert_quantity_allclose(kwargs["v_max"], expected)
-    assert kwargs["convention"] == "optical"
+    from specutils import Spectrum
+    x = spectrum.spectral_axis.value
+    v_true = 150.0                                    # km/s, invented
+    y = np.ones(x.size)
+    for r, amp in zip(REST, AMPLITUDE):
+        y += amp * np.exp(-0.5 * ((x - r * (1 + v_true / 299792.458)) / 2.5) ** 2)
+    near_rest = Spectrum(spectral_axis=x * u.AA, flux=y * u.Jy,
+                         uncertainty=spectrum.uncertainty, meta={"zline": {"medium": "vacuum"}})
+    w = LineIdentifier(near_rest, lines="galaxy-emission")
+    w.scan(z_min=-0.002, z_max=0.002, top=2)
+    assert w._scan[1] == "velocity"
+    best = w.candidates[0]
+    assert best.velocity.to_value(u.km / u.s) == pytest.approx(v_true, abs=30.0)
+    assert "km/s" in w.ui.candidates.options[0][0]
+    w.jump_to(0)
+    assert w.z == 0.0 and w.velocity == pytest.approx(best.velocity.to_value(u.km / u.s))
 
 
 # ------------------------------------------------------------------ export
@@ -518,43 +584,71 @@ def test_export_writes_every_format_and_never_overwrites(w, tmp_path):
         w.export(tmp_path / "x.txt", format="txt")
 
 
-def test_export_button_shows_an_existing_file_in_plain_words(w, tmp_path):
+def test_buttons_replace_a_file_only_on_a_second_press(w, tmp_path):
     w.lock(near=REST[2] * (1 + TRUE_Z) * u.AA)
     target = tmp_path / "t.csv"
     target.write_text("keep me")
-    w._export_format.value = "csv"
-    w._export_path.value = str(target)
-    w._export_button.click()
+    w.ui.export_format.value = "csv"
+    w.ui.export_path.value = str(target)
+    w.ui.export.click()
     assert target.read_text() == "keep me"
-    assert "exists already" in w.status and "Traceback" not in w.status
-    w._export_format.value = "ecsv"
-    assert w._export_path.value.endswith("t.ecsv")
-    w._export_button.click()
+    assert "exists" in w.status and "press 'write table' again" in w.status and "Traceback" not in w.status
+    w.ui.export_format.value = "ecsv"
+    assert w.ui.export_path.value.endswith("t.ecsv")
+    w.ui.export.click()
     assert (tmp_path / "t.ecsv").exists() and "wrote 1 line" in w.status
+    first = (tmp_path / "t.ecsv").read_text()
+    w.lock(near=REST[1] * (1 + TRUE_Z) * u.AA)
+    w.ui.export.click()                                  # exists: first press only arms
+    assert (tmp_path / "t.ecsv").read_text() == first
+    w.ui.export.click()                                  # second press: replaced
+    assert "wrote 2 line" in w.status and (tmp_path / "t.ecsv").read_text() != first
+    # the same rule for the session file
+    w.ui.save_path.value = str(tmp_path / "s.json")
+    w.ui.save.click()
+    saved = (tmp_path / "s.json").read_text()
+    w.lock(near=REST[0] * (1 + TRUE_Z) * u.AA)
+    w.ui.save.click()
+    assert (tmp_path / "s.json").read_text() == saved and "press 'save' again" in w.status
+    w.ui.save.click()
+    assert (tmp_path / "s.json").read_text() != saved and "saved 3 lock" in w.status
 
+
+def test_confirm_step_expires_and_is_per_file():
+    from zline.widgets.glue import ConfirmStep
+    now = [100.0]
+    c = ConfirmStep(seconds=5.0, clock=lambda: now[0])
+    assert not c.confirmed("a")
+    now[0] += 4.0
+    assert c.confirmed("a")                 # second press in time
+    assert not c.confirmed("a")             # used up: arms again
+    now[0] += 6.0
+    assert not c.confirmed("a")             # too late: arms again
+    assert not c.confirmed("b")             # another file does not confirm the first
+    now[0] += 1.0
+    assert not c.confirmed("a")
 
 def test_locked_and_predicted_labels_share_the_rows_without_crowding(spectrum):
-    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.1, label_spacing=16.0)
-    for rest in REST:                      # Hα and [N II] 6583 sit 3 px apart on the full view
+    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.1)
+    for rest in REST:
         w.lock(near=rest * (1 + TRUE_Z) * u.AA)
-    span = w._xs.max - w._xs.min
-    lpx = (u.Quantity([lk.observed for lk in w.locks]).to_value(u.AA) - w._xs.min) / span * w._plot_px
-    lrows = w.locked_label_rows()
-    assert (lrows >= 0).sum() >= 3 and len(set(lrows[lrows >= 0])) >= 2
-    rows, px = w.label_rows(), w.label_pixels()
-    for r in range(3):
-        row_px = np.sort(np.concatenate([px[rows == r], lpx[lrows == r]]))
-        if row_px.size > 1:
-            assert np.diff(row_px).min() >= 16.0
-    text = list(w._locked_labels.text)
+    lrows = w.plot.locked_rows
+    assert (lrows >= 0).sum() >= 3
+    assert_no_overlap(label_extents(w))
+    text = list(w.plot.locked_labels.text)
     assert [t != "" for t in text] == (lrows >= 0).tolist()
-    y = np.asarray(w._locked_labels.y, float)
-    assert np.all(y[lrows > 0] < w._ys.max) and np.allclose(y[lrows == 0], w._ys.max)
+    assert np.asarray(w.plot.locked_marks.x).size == len(w.locks)
 
 
 def test_slider_echo_snapped_to_its_step_keeps_the_exact_z(w):
     w.z = 0.0733994
-    frontend_update(w._slider, value=round(0.0733994, 3))      # what the browser slider sends back
+    s = w.ui.slider
+    frontend_update(s, value=0.4 * s.step)       # what a browser slider may send back after snapping
     assert w.z == 0.0733994
-    frontend_update(w._slider, value=0.075)                    # a real move of two steps
-    assert w.z == pytest.approx(0.075)
+    frontend_update(s, value=0.0)
+    assert w.z == 0.0733994
+    frontend_update(s, value=2 * s.step)          # a real move of two steps
+    assert w.z == pytest.approx(0.0733994 + 2 * s.step)
+    w.z = 0.0733985                               # a value from code: recentred, exact
+    frontend_update(s, value=0.0)                 # a late echo of the old position
+    assert w.z == 0.0733985
