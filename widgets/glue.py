@@ -65,12 +65,14 @@ def session_state(w):
     settings = {"z": w.z, "velocity": w.velocity * _KMS, "convention": w.convention,
                 "medium": w._medium, "line_set": w._set_name, "mode": w.mode,
                 "view": [lo, hi] * w._xunit}
-    if w._source_sha256 is not None:
+    if w._source_sha256 is not None:  # an upload: its name and digest, never a path
         settings["source_name"] = w._source_name
         settings["source_sha256"] = w._source_sha256
-    source = w._source_name
-    if source is not None and os.path.exists(source):
-        source = os.path.abspath(source)
+        source = None
+    else:
+        source = w._source_path
+        if source is not None:  # the file's digest, so a restore re-opens the same data
+            settings.update(session.source_settings(source))
     return {"locks": list(w.locks), "fits": fits,
             "z": w._solution if w._solution is not None else w.z,
             "settings": settings, "spectrum": source}
@@ -139,7 +141,7 @@ def restore_into(w, doc):
             w.plot.xs.min, w.plot.xs.max = float(lo), float(hi)
     if settings.get("mode") in MODES:
         w.mode = settings["mode"]
-    if settings.get("source_sha256"):
+    if settings.get("source_sha256") and w._source_path is None:  # restored from upload bytes
         w._source_name = settings.get("source_name", w._source_name)
         w._source_sha256 = settings["source_sha256"]
     w._locks_changed()
@@ -342,7 +344,14 @@ class SessionMixin:
         settings = doc.get("settings") or {}
         source = spectrum if spectrum is not None else doc.get("spectrum")
         if source is None:
+            if settings.get("source_sha256"):
+                raise ValueError(
+                    f"restore: the session {os.fspath(path)!r} was saved on the uploaded file "
+                    f"{settings.get('source_name')!r} (SHA-256 {settings['source_sha256'][:12]}...); "
+                    f"pass spectrum=<that file or its bytes>")
             raise ValueError(f"restore: the session {os.fspath(path)!r} names no spectrum file; pass spectrum=...")
+        if isinstance(source, (bytes, bytearray, memoryview, str, os.PathLike)):
+            session.check_source(doc, source, session=path)  # refuses other data than was saved
         line_set = lines if lines is not None else settings.get("line_set", "galaxy-emission")
         if isinstance(line_set, str) and line_set == "custom":
             raise ValueError(f"restore: the session {os.fspath(path)!r} used a custom line table; "

@@ -76,7 +76,7 @@ class LineIdentifier(LockingMixin, ShiftControlsMixin, glue.SessionMixin, Identi
                              f"got {convention!r}")
         self._medium_arg, self._ready, self._syncing = medium, False, False
         self._book, self._solution, self._scan = LockBook(), None, (None, None)
-        self._source_name = self._source_sha256 = None
+        self._source_name = self._source_sha256 = self._source_path = None
         self._slider_pushed, self._anchor = 0.0, float(z)
         self._confirm = glue.ConfirmStep()
         self.plot = SpectrumPlot(width=width, label_rows=label_rows)
@@ -240,12 +240,15 @@ class LineIdentifier(LockingMixin, ShiftControlsMixin, glue.SessionMixin, Identi
             self._syncing = True
             self.ui.candidates.options, self.ui.scan_progress.value = [], 0
             self._syncing = False
+        self._source_path = None  # a file on disk the session can re-open (None for an upload)
         if isinstance(source, (bytes, bytearray, memoryview)):
             self._source_name = name or meta.get("file") or "upload"
             self._source_sha256 = hashlib.sha256(bytes(source)).hexdigest()
         else:
             self._source_name = os.fspath(source) if isinstance(source, (str, os.PathLike)) else meta.get("file")
             self._source_sha256 = None
+            if isinstance(source, (str, os.PathLike)) and os.path.isfile(source):
+                self._source_path = os.path.abspath(os.fspath(source))
         kind = next((k for k, unit in (("wavelength", u.m), ("frequency", u.Hz), ("energy", u.J),
                                        ("wavenumber", 1 / u.m)) if xunit.is_equivalent(unit)), "position")
         where = f" in {medium}" if self._is_length else ""

@@ -1,6 +1,7 @@
 """LineIdentifier without a browser: traits and controls, simulated frontend messages, locks,
 tables, save/restore and error display."""
 
+import os
 from unittest import mock
 
 import astropy.units as u
@@ -652,3 +653,51 @@ def test_slider_echo_snapped_to_its_step_keeps_the_exact_z(w):
     w.z = 0.0733985                               # a value from code: recentred, exact
     frontend_update(s, value=0.0)                 # a late echo of the old position
     assert w.z == 0.0733985
+
+
+def test_session_of_an_upload_never_reopens_a_namesake(tmp_path, monkeypatch):
+    """An upload named galaxy.fits is recorded by name and SHA-256, never as ./galaxy.fits; a
+    restore on other data with that name is refused, on the same bytes it brings the locks back."""
+    import astropy.units as u
+
+    from zline.physics.demo import write_demo_spectra
+    from zline.physics.session import SessionSourceError, load_session
+
+    paths = write_demo_spectra(tmp_path / "demo")
+    galaxy, other = os.fspath(paths["galaxy"]), os.fspath(paths["nebula"])
+    data = open(galaxy, "rb").read()
+    monkeypatch.chdir(tmp_path)
+    with open(tmp_path / "galaxy.fits", "wb") as fh:  # a different file with the upload's name
+        fh.write(open(other, "rb").read())
+    w = LineIdentifier(galaxy)
+    w.load(data, name="galaxy.fits")
+    w.z = 0.0734
+    w.lock(near=7045 * u.AA)
+    saved = w.save(tmp_path / "s.json")
+    doc = load_session(saved)
+    assert doc["spectrum"] is None
+    assert doc["settings"]["source_name"] == "galaxy.fits"
+    with pytest.raises(ValueError, match="uploaded file 'galaxy.fits'"):
+        LineIdentifier.restore(saved)
+    with pytest.raises(SessionSourceError):
+        LineIdentifier.restore(saved, spectrum=str(tmp_path / "galaxy.fits"))
+    back = LineIdentifier.restore(saved, spectrum=data)
+    assert [lock.label for lock in back.locks] == [lock.label for lock in w.locks]
+
+
+def test_session_of_a_file_records_its_digest(tmp_path):
+    """A session saved on a file records the file's SHA-256; a changed file is refused on restore."""
+    import astropy.units as u
+
+    from zline.physics.demo import write_demo_spectra
+    from zline.physics.session import SessionSourceError
+
+    galaxy = os.fspath(write_demo_spectra(tmp_path / "demo")["galaxy"])
+    w = LineIdentifier(galaxy, z=0.0734)
+    w.lock(near=7045 * u.AA)
+    saved = w.save(tmp_path / "s.json")
+    assert len(LineIdentifier.restore(saved).locks) == 1
+    with open(galaxy, "ab") as fh:  # the file changes after the session was saved
+        fh.write(b"\0" * 2880)
+    with pytest.raises(SessionSourceError):
+        LineIdentifier.restore(saved)
