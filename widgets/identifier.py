@@ -260,8 +260,10 @@ class LineIdentifier(LockingMixin, ShiftControlsMixin, glue.SessionMixin, Identi
         pixel_kms = _C_KMS * abs(self.plot.pixel) / float(np.median(x))
         self.strip.set_data(x, flux, mask, xunit, pixel_kms)
         assumed = " (medium assumed: no keyword in the file)" if meta.get("medium_assumed") else ""
+        said = [f.get("message", "") for f in meta.get("flags", []) if isinstance(f, dict)]
         self._header.value = header_html(os.path.basename(self._source_name or "spectrum"), x.size, x[0], x[-1],
-                                         ustr, f", {medium}{assumed}" if self._is_length else "")
+                                         ustr, f", {medium}{assumed}" if self._is_length else "",
+                                         note="; ".join(m for m in said if m))
         if getattr(self, "_ready", False):
             self._locks_changed(say=False)
 

@@ -368,6 +368,7 @@ class SpectrumPlot:
 
 def header_html(name, n, x0, x1, unit, medium_text, note=""):
     """The one-line header above the plot: file name, size, range, medium and a note."""
-    extra = f' &nbsp; <span style="color:#555">{html.escape(note)}</span>' if note else ""
+    extra = (f'<br><span class="zline-reader-note" style="color:#B35900">read with assumptions: '
+             f'{html.escape(note)}</span>' if note else "")
     return (f"<b>{html.escape(name)}</b>: {n} pixels, {x0:.6g}-{x1:.6g} {html.escape(unit)}"
             f"{html.escape(medium_text)}{extra}")

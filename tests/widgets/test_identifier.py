@@ -701,3 +701,24 @@ def test_session_of_a_file_records_its_digest(tmp_path):
         fh.write(b"\0" * 2880)
     with pytest.raises(SessionSourceError):
         LineIdentifier.restore(saved)
+
+
+def test_reader_assumptions_are_shown_above_the_plot(tmp_path):
+    """Every guess the reader made about the file is written in the widget's header line."""
+    import html as _html
+
+    from astropy.io import fits
+
+    wave = np.linspace(4000.0, 7000.0, 1500)
+    flux = 1.0 + np.exp(-0.5 * ((wave - 6563.0) / 3.0) ** 2)
+    cols = [fits.Column(name="wave", format="D", array=wave),  # no TUNIT: the unit is a guess
+            fits.Column(name="flux", format="D", array=flux)]
+    path = tmp_path / "guessy.fits"
+    fits.HDUList([fits.PrimaryHDU(), fits.BinTableHDU.from_columns(cols)]).writeto(path)
+    w = LineIdentifier(str(path))
+    said = [f["message"] for f in w.spectrum.meta["zline"]["flags"]]
+    assert said, "the reader should have recorded at least one assumption for this file"
+    shown = _html.unescape(w._header.value)
+    assert "read with assumptions" in shown
+    for message in said:
+        assert message in shown
