@@ -18,7 +18,8 @@ venv: $(STAMP)
 ## The main job: the galaxy notebook in JupyterLab on the invented demo spectra.  JupyterLab works on
 ## copies in $(DEMO_DIR) (git-ignored, like notebooks/demo-data), so running and saving never touch the
 ## tracked notebooks; everything the notebooks write lands in $(DEMO_DIR)/scratch.
-demo: $(STAMP) demo-files
+demo: $(STAMP)
+	$(MAKE) --no-print-directory demo-files
 	$(BIN)/jupyter lab --ip=127.0.0.1 --port=$(PORT) $(if $(filter 0,$(shell id -u)),--allow-root,) \
 	  --ServerApp.root_dir=$(DEMO_DIR) --LabApp.default_url=/lab/tree/galaxy_redshift.ipynb
 

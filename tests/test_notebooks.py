@@ -4,7 +4,7 @@ and leaves the checkout clean.
 The module copies the tracked Makefile, .gitignore and notebooks into a throw-away git repository,
 runs `make demo-files` there (demo data in notebooks/demo-data, a working copy of each notebook in
 notebooks/scratch/demo), executes each copy in a fresh python3 kernel from that folder (as
-JupyterLab would) and saves it back in place (as JupyterLab's autosave would).
+JupyterLab would; two at a time) and saves it back in place (as JupyterLab's autosave would).
 
 A notebook passes when no cell raised, nothing was written to stderr (warnings included), its last
 code cell prints the result named in `EXPECTED` (checked against the demo truth) and shows a widget
@@ -12,6 +12,7 @@ holding at least one bqplot Figure whose marks carry finite data, and `FIGURE_CH
 result in the figure's own data.  Afterwards `git status --porcelain` of the copy must be empty.
 """
 
+import asyncio
 import base64
 import re
 import shutil
@@ -114,6 +115,7 @@ def _text(output):
 
 def _git(root, *args):
     return subprocess.run(["git", "-c", "user.name=zline tests", "-c", "user.email=tests@invalid",
+                           "-c", "commit.gpgsign=false", "-c", "init.defaultBranch=main",
                            *args], cwd=root, check=True, capture_output=True, text=True).stdout
 
 
@@ -144,23 +146,30 @@ def checkout(tmp_path_factory):
     return root
 
 
+#: Notebooks executed at the same time (each kernel is mostly busy on one core; CI has two).
+PARALLEL = 2
+
+
 @pytest.fixture(scope="module")
-def run(checkout):
-    """run(name) executes the demo copy of a notebook once, saves it back, returns it."""
-    done = {}
+def executed(checkout):
+    """{name: executed notebook} for the demo copies, two kernels at a time; each is saved back in
+    place, as JupyterLab's autosave does to an open notebook."""
 
-    def execute(name):
-        if name not in done:
-            path = checkout / DEMO_DIR / name
-            nb = nbformat.read(path, as_version=4)
-            assert nb.metadata["kernelspec"]["name"] == "python3"
-            NotebookClient(nb, timeout=300, kernel_name="python3",
-                           resources={"metadata": {"path": str(path.parent)}}).execute()
-            nbformat.write(nb, path)   # what JupyterLab's autosave does to the open notebook
-            done[name] = nb
-        return done[name]
+    async def one(name, slots):
+        path = checkout / DEMO_DIR / name
+        nb = nbformat.read(path, as_version=4)
+        assert nb.metadata["kernelspec"]["name"] == "python3"
+        async with slots:
+            await NotebookClient(nb, timeout=300, kernel_name="python3",
+                                 resources={"metadata": {"path": str(path.parent)}}).async_execute()
+        nbformat.write(nb, path)
+        return nb
 
-    return execute
+    async def every():
+        slots = asyncio.Semaphore(PARALLEL)
+        return await asyncio.gather(*(one(name, slots) for name in NOTEBOOKS), return_exceptions=True)
+
+    return dict(zip(NOTEBOOKS, asyncio.run(every())))
 
 
 def _decode(model, key):
@@ -195,8 +204,10 @@ def _marks(states, figure):
 
 
 @pytest.mark.parametrize("name", NOTEBOOKS)
-def test_notebook_runs_and_ends_with_a_result_and_a_figure(name, run):
-    nb = run(name)
+def test_notebook_runs_and_ends_with_a_result_and_a_figure(name, executed):
+    nb = executed[name]
+    if isinstance(nb, BaseException):
+        raise nb
     code = [cell for cell in nb.cells if cell.cell_type == "code"]
     for i, cell in enumerate(code):
         for out in cell.outputs:
@@ -231,9 +242,8 @@ def test_notebook_runs_and_ends_with_a_result_and_a_figure(name, run):
     FIGURE_CHECKS[name](marks)
 
 
-def test_demo_leaves_the_checkout_clean(checkout, run):
-    for name in NOTEBOOKS:
-        run(name)
+def test_demo_leaves_the_checkout_clean(checkout, executed):
+    assert not [name for name, nb in executed.items() if isinstance(nb, BaseException)]
     status = _git(checkout, "status", "--porcelain", "--untracked-files=all")
     assert status == "", f"the demo dirtied the checkout:\n{status}"
     assert (checkout / "notebooks/demo-data/galaxy.fits").is_file()      # demo data stays there
