@@ -1,5 +1,6 @@
 """``zline batch INPUTS... -o CATALOG``: blind redshifts of many spectra into one ECSV catalogue."""
 
+import os
 import sys
 
 from zline.cli import CommandError
@@ -12,18 +13,14 @@ HELP = ("Measure the redshift of every spectrum in files, directories or globs i
 
 
 def add_arguments(parser):
-    from zline.physics.catalog import LINE_SETS
+    from zline.cli.scan import add_search_options
 
     parser.add_argument("inputs", nargs="+", metavar="INPUTS",
                         help="spectrum files, directories or glob patterns")
     parser.add_argument("-o", "--output", required=True, metavar="CATALOG",
                         help="ECSV catalogue to write; records of finished spectra are kept in "
                         "CATALOG.parts/ and reused by a rerun")
-    parser.add_argument("--z-min", type=float, default=0.0, help="lowest redshift (default 0)")
-    parser.add_argument("--z-max", type=float, default=3.0, help="highest redshift (default 3)")
-    parser.add_argument("--lines", default="galaxy-emission", choices=sorted(LINE_SETS),
-                        metavar="SET", help="line set of the comb (default galaxy-emission); one "
-                        "of " + ", ".join(sorted(LINE_SETS)))
+    add_search_options(parser)
     parser.add_argument("--workers", type=int, default=None, metavar="N",
                         help="local worker processes (default: number of CPUs; 1 = in-process)")
     parser.add_argument("--scheduler", default=None, metavar="ADDRESS",
@@ -32,12 +29,16 @@ def add_arguments(parser):
 
 
 def run(args):
+    from zline.cli.scan import search_options
     from zline.physics.batch import expand_inputs, measure_survey, text_progress
 
     if args.workers is not None and args.workers < 1:
         raise CommandError(f"--workers must be a positive integer; got {args.workers}")
-    if not args.z_max > args.z_min or args.z_min <= -1:
-        raise CommandError(f"need -1 < --z-min < --z-max; got {args.z_min}, {args.z_max}")
+    kw = search_options(args)
+    scan_options = dict(klass=kw["klass"], mask_sky=kw["mask_sky"], template=args.template,
+                        v_min_kms=args.v_min, v_max_kms=args.v_max)
+    if args.template is not None and not os.path.isfile(args.template):
+        raise CommandError(f"--template {args.template!r}: no such file")
     try:
         expand_inputs(args.inputs)
     except ValueError as exc:
@@ -57,7 +58,7 @@ def run(args):
     try:
         table = measure_survey(args.inputs, args.output, z_min=args.z_min, z_max=args.z_max,
                                lines=args.lines, workers=args.workers, client=client,
-                               progress=progress)
+                               progress=progress, **scan_options)
     except KeyboardInterrupt:
         print(f"\nzline batch: interrupted; finished spectra are kept in {args.output}.parts/ "
               f"and a rerun continues from there", file=sys.stderr)
