@@ -26,11 +26,15 @@ CLIP_SNR = 8.0  # per-pixel S/N ceiling (see prepare) ...
 CLIP_PERCENTILE = 95.0  # ... unless 5% of the pixels are above it (rich absorption spectra)
 WHITEN_KMS = 20000.0  # window of the running scatter that down-weights excess structure
 
-#: Bright night-sky emission lines in AIR [Angstrom] (the auroral/airglow lines of O I and the
-#: mercury street-light lines; values of the trade, common practice) and the half-width masked.
+#: Bright night-sky emission lines in AIR [Angstrom]: the airglow lines of O I, the mercury
+#: street-light lines and the brightest OH Meinel-band lines below 9400 A (values of the trade,
+#: common practice, from memory); each is masked over +-`SKY_HALF_WIDTH_AA`.
 SKY_LINES_AIR = ((4358.34, "Hg I street light"), (5460.74, "Hg I street light"),
                  (5577.34, "[O I] night sky"), (6300.30, "[O I] night sky"),
-                 (6363.78, "[O I] night sky"))
+                 (6363.78, "[O I] night sky")) + tuple(
+    (w, "OH night sky") for w in (7316.28, 7340.89, 7750.64, 7794.11, 7821.50, 7913.71,
+                                  7993.33, 8344.60, 8399.17, 8430.17, 8827.10, 8885.85,
+                                  8919.61, 8943.40, 8988.38, 9001.38, 9375.96))
 SKY_HALF_WIDTH_AA = 4.0
 #: Telluric absorption bands in AIR [Angstrom] (O2 B and A bands; common practice).
 TELLURIC_BANDS_AIR = ((6864.0, 6935.0, "telluric O2 B band"),
@@ -132,8 +136,9 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     Returns
     -------
     dict
-        ``grid, d`` (S/N), ``cov`` (1 where data), ``var`` (variance of d per grid point),
-        ``snr, good, lnlam`` (data pixels), ``h, dln, medium, is_freq, unit, masked``
+        ``grid, d`` (S/N summed per grid cell), ``d_wide``, ``cov`` (1 where data), ``var``
+        (variance of d per grid cell), ``snr, good, lnlam`` (data pixels), ``h`` (grid step),
+        ``dln`` (median pixel step), ``medium, is_freq, unit, masked``
         (list of (lo, hi, reason) in the spectrum's unit), ``notes`` (list of str).
     """
     lam, unit = _wavelength_axis(spectrum)
@@ -207,8 +212,15 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
         cont_w[good] = _running_median(flux[good], wwin)
         snr_wide = np.where(good, (flux - cont_w) / np.where(good, err, 1.0), 0.0) / excess
         snr_wide = np.clip(snr_wide, -clip, clip)
-    h = float(np.percentile(dln, 10)) if step is None else float(step)
-    h = max(h, MIN_STEP)
+    from zline.physics.scan_kinds import line_width  # noqa: PLC0415
+
+    w_em, w_abs = line_width(snr, good, dpix, 1.0), line_width(snr, good, dpix, -1.0)
+    widths = [w for w in (w_em, w_abs) if w > 1.51 * dpix]
+    # lag step: the data's coarsest pixel step, or a third of the narrowest measured line width
+    # when that is coarser (finely sampled spectra: the work follows the lines, not the pixels)
+    coarse = float(np.percentile(dln, 99))
+    h = max(coarse, min(widths) / 3.0) if widths else coarse
+    h = max(float(step) if step is not None else h, MIN_STEP)
     g0, g1 = lnlam[good][0], lnlam[good][-1]
     n = int(np.floor((g1 - g0) / h)) + 1
     if n > MAX_GRID:
@@ -222,20 +234,32 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
         for lo, hi, why in _sky_regions(np.exp(g0), np.exp(g1), medium):
             good &= ~((lam >= lo) & (lam <= hi))
             masked.append((lo, hi, why))
-    d = np.interp(grid, lnlam, np.where(good, snr, 0.0))
-    d_wide = None if snr_wide is None else np.interp(grid, lnlam, np.where(good, snr_wide, 0.0))
-    cov = np.interp(grid, lnlam, good.astype(float))
-    gap = np.interp(grid, lnlam[good], np.r_[0.0, np.diff(lnlam[good])]) if good.any() else grid
-    cov[gap > 10 * dpix] = 0.0
-    cov = (cov >= 0.5).astype(float)
-    d *= cov
-    if d_wide is not None:
-        d_wide *= cov
-    over = np.maximum(1.0, np.interp(grid, lnlam[1:], dln_all) / h)
+    if h >= 0.999 * coarse:
+        # every grid cell sums the S/N of the pixels in it (variance = their number)
+        cell = np.clip(np.round((lnlam[good] - g0) / h).astype(int), 0, n - 1)
+        var = np.bincount(cell, minlength=n).astype(float)
+        d = np.bincount(cell, weights=snr[good], minlength=n)
+        d_wide = None if snr_wide is None else np.bincount(cell, weights=snr_wide[good],
+                                                           minlength=n)
+        cov = (var > 0).astype(float)
+    else:
+        # a grid finer than the pixels (``step``): interpolate; a sum over the grid repeats each
+        # pixel about `over` times
+        d = np.interp(grid, lnlam, np.where(good, snr, 0.0))
+        d_wide = None if snr_wide is None else np.interp(grid, lnlam,
+                                                         np.where(good, snr_wide, 0.0))
+        cov = np.interp(grid, lnlam, good.astype(float))
+        gap = np.interp(grid, lnlam[good], np.r_[0.0, np.diff(lnlam[good])])
+        cov[gap > 10 * dpix] = 0.0
+        cov = (cov >= 0.5).astype(float)
+        d *= cov
+        if d_wide is not None:
+            d_wide *= cov
+        var = cov * np.maximum(1.0, np.interp(grid, lnlam[1:], dln_all) / h)
     masked_q = []
     for lo, hi, why in masked:
         q = (np.array([lo, hi]) * u.AA).to_value(unit, equivalencies=u.spectral())
         masked_q.append((float(q.min()), float(q.max()), why))
-    return dict(grid=grid, d=d, d_wide=d_wide, cov=cov, var=cov * over, over=over, snr=snr, good=good,
-                lnlam=lnlam, h=h, dln=dpix, medium=medium, is_freq=is_freq, unit=unit,
+    return dict(grid=grid, d=d, d_wide=d_wide, cov=cov, var=var, snr=snr, good=good,
+                lnlam=lnlam, h=h, dln=dpix, width_em=w_em, width_abs=w_abs, medium=medium, is_freq=is_freq, unit=unit,
                 masked=masked_q, notes=notes)
