@@ -57,7 +57,8 @@ def _uncertainty(spectrum, shape):
     if unc is None:
         return None
     try:
-        err = np.asarray(unc.represent_as(StdDevUncertainty).array, dtype=float).reshape(-1)
+        with np.errstate(divide="ignore", invalid="ignore"):  # zero inverse variance: no data
+            err = np.asarray(unc.represent_as(StdDevUncertainty).array, dtype=float).reshape(-1)
     except (TypeError, ValueError, AttributeError):
         return None
     return err if err.shape == shape else None

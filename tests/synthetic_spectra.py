@@ -204,18 +204,19 @@ def make(kind, z=0.0, snr=10.0, seed=0, velocity_kms=0.0):
     return lam, noisy, err, {"kind": kind, "z": z, "snr": snr}
 
 
-def write_fits(path, lam, flux, err):
-    """A 1D FITS file: log-linear vacuum wavelength axis in the WCS, flux in the primary HDU
-    and the 1-sigma error in an extension named ERR."""
+def write_fits(path, lam, flux, err, medium="vacuum"):
+    """A 1D FITS file: log-linear wavelength axis in the WCS (``lam`` must be log-linear; FITS
+    WCS ``WAVE-LOG`` for vacuum, ``AWAV-LOG`` for air), flux in the primary HDU and the 1-sigma
+    error in an extension named ERR."""
     hdr = fits.Header()
-    hdr["CTYPE1"] = "WAVE-LOG"
+    hdr["CTYPE1"] = "AWAV-LOG" if medium == "air" else "WAVE-LOG"
     hdr["CUNIT1"] = "Angstrom"
     hdr["CRPIX1"] = 1.0
     hdr["CRVAL1"] = float(lam[0])
-    hdr["CDELT1"] = float(lam[0] * np.log(10) * LOGLAM_STEP)
+    hdr["CDELT1"] = float(lam[0] * np.log(lam[1] / lam[0]))
     hdr["BUNIT"] = "erg / (s cm2 Angstrom)"
     hdr["SPECSYS"] = "TOPOCENT"
-    hdr["VACUUM"] = True
+    hdr["VACUUM"] = medium != "air"
     prim = fits.PrimaryHDU(flux.astype(np.float32), header=hdr)
     ehdu = fits.ImageHDU(err.astype(np.float32), name="ERR")
     fits.HDUList([prim, ehdu]).writeto(path, overwrite=True)
