@@ -1,32 +1,37 @@
 """Blind redshift and velocity search: cross-correlate a spectrum with combs of line positions.
 
 The data are prepared once (`zline.physics.scan_prep`): continuum removed by a running median over
-7000 km/s, divided by the 1-sigma errors (an S/N spectrum), night-sky lines and telluric O2 bands
-masked, resampled onto a uniform ln(lambda) grid whose size is bounded before it is allocated.
-Every kind of spectrum (`zline.physics.scan_kinds.KINDS`: emission-line galaxy, absorption-line
-galaxy, quasar, star) has its own comb of Gaussian teeth; each is correlated with the data by FFT
-(the data's transforms are shared).  Every lag is a trial ``ln(1 + z)``.
+7000 km/s (and over 40000 km/s for the broad-line combs), divided by the 1-sigma errors (an S/N
+spectrum), down-weighted where its running scatter exceeds 1 (a Lyman-alpha forest, poor sky
+subtraction), night-sky lines and telluric O2 bands masked, summed into cells of a uniform
+ln(lambda) grid whose size is bounded before it is allocated.  Every kind of spectrum
+(`zline.physics.scan_kinds.KINDS`: emission-line galaxy, absorption-line galaxy, quasar, star) has
+its own comb of Gaussian teeth; each is correlated with the data by FFT (the data's transforms are
+shared).  Every lag is a trial ``ln(1 + z)``; the returned candidates are refined on a lag grid
+eight times finer by direct evaluation.
 
 Score (one footing for all kinds): the correlation at each lag divided by its own noise (the comb
-power over the teeth that fall in the data at that lag) is a matched-filter significance, robustly
-rescaled so that noise-only lags of that comb have unit scatter.  It is multiplied by a
-plausibility factor ``sqrt(1 - exp(-P))``, P = sum over the teeth in the data of
+power over the teeth that fall in the data at that lag) is a matched-filter significance.  It is
+multiplied by a plausibility factor ``sqrt(1 - exp(-P))``, P = sum over the teeth in the data of
 min(|weight|, 1)**2.
 
-No single line carries a reading: (1) tooth weights are capped at 1.5 (Hbeta = 1), so Lyα or Hα
-alone never outweighs the rest of a comb; (2) the plausibility factor is at most 0.80 for a
-reading with one line in the data and 0.93 with two; (3) a reading with fewer than two lines
-matched at `MATCH_THRESHOLD` has its score multiplied by `SINGLE_LINE_FACTOR`.  A resolved doublet
-([O II], [S II], Mg II, Na D ...) or a line with its neighbours (Hα with [N II]) counts as several
-lines, so such a reading is not penalised.
+No single line carries a reading: (1) the S/N of each pixel is clipped at 8 (or at the 95th
+percentile of |S/N| when that is higher, as in rich absorption spectra), so one very strong line,
+a cosmic ray or a sky residual counts no more than any clear line of its width; (2) tooth weights
+are capped at 1.5 (Hbeta = 1), so Lyα or Hα alone never outweighs the rest of a comb; (3) the
+plausibility factor is at most 0.80 for a reading with one line in the data and 0.93 with two;
+(4) a reading with fewer than two separate features matched at `MATCH_THRESHOLD` has its score
+multiplied by `SINGLE_LINE_FACTOR`.  A resolved doublet ([O II], [S II], Mg II, Na D ...) or a
+line with its neighbours (Hα with [N II]) counts as several features, so such a reading is not
+penalised; lines closer than three tooth widths (Ca II H and Hε) count once.
 
 Candidates within three tooth widths of a stronger one (of any kind) are the same reading and are
 merged into it.  The result carries a `confidence` that the first candidate is right: a logistic
 function of the first score s1 and of its margin over the second reading s2 (at least 0.1),
-``1 / (1 + exp(-(a + b ln s1 + c ln(s1 / s2))))`` with the coefficients of `CONFIDENCE_COEFFS`.  They were fitted by
-maximum likelihood (iteratively reweighted least squares) to 586 readings: 540 synthetic spectra
-of every kind (emission and absorption galaxies, quasars, stars, sky fibres and pure noise, 30
-each at S/N 3, 10 and 30, from the tests' own generator tests/synthetic_spectra.py) and the 46
+``1 / (1 + exp(-(a + b ln s1 + c ln(s1 / s2))))`` with the coefficients of
+`CONFIDENCE_COEFFS`.  They were fitted by maximum likelihood (iteratively reweighted least
+squares) to 586 readings: 540 synthetic spectra of every kind (emission and absorption
+galaxies, quasars, stars, sky fibres and pure noise, 30 each at S/N 3, 10 and 30, from the tests' own generator tests/synthetic_spectra.py) and the 46
 readable survey spectra of ../shared/realdata (SDSS and LAMOST pipeline redshifts).  A reading
 is right when |dz| < 0.003 (1 + z) (stars: 30 km/s); the first reading of a sky fibre or of noise
 is wrong by definition.  On those readings, 98% of the ones given a confidence >= 0.9 are right
@@ -163,88 +168,6 @@ class ScanResult:
 # peaks
 
 
-def _refine(lag, score, i):
-    if 0 < i < len(score) - 1:
-        y0, y1, y2 = score[i - 1], score[i], score[i + 1]
-        den = y0 - 2 * y1 + y2
-        h = lag[i + 1] - lag[i]
-        if den < 0:
-            off = 0.5 * (y0 - y2) / den
-            off = float(np.clip(off, -1.0, 1.0))
-            peak = y1 - 0.25 * (y0 - y2) * off
-            curv = den / h**2
-            err = 1.0 / np.sqrt(max(-peak * curv, 1e-300)) if peak > 0 else np.nan
-            return lag[i] + off * h, peak, err
-    return lag[i], score[i], np.nan
-
-
-def _matched(prep, comb, s):
-    """Labels of the comb's lines at ln(1+z) = s with a local S/N above MATCH_THRESHOLD."""
-    grid, cov, h, var = prep["grid"], prep["cov"], prep["h"], prep["var"]
-    d = prep[comb.data]
-    c = comb.rest_ln + s
-    inside = (c >= grid[0]) & (c <= grid[-1])
-    if not inside.any():
-        return []
-    c, w, sig = c[inside], comb.weights[inside], comb.sigmas[inside]
-    labels = [lab for lab, k in zip(comb.labels, inside) if k]
-    i0 = np.clip(np.round((c - grid[0]) / h).astype(int), 0, len(grid) - 1)
-    half = int(np.ceil(3 * sig.max() / h)) + 1
-    idx = i0[:, None] + np.arange(-half, half + 1)[None, :]
-    ok = (idx >= 0) & (idx < len(grid))
-    idx = np.clip(idx, 0, len(grid) - 1)
-    g = np.exp(-0.5 * ((grid[idx] - c[:, None]) / sig[:, None]) ** 2) * cov[idx] * ok
-    g *= np.abs(grid[idx] - c[:, None]) <= 3 * sig[:, None] + h
-    norm = np.sqrt(np.sum(var[idx] * g**2, axis=1))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        local = np.sign(w) * np.sum(d[idx] * g, axis=1) / norm
-    hit = (norm > 0) & (cov[i0] > 0) & (local >= MATCH_THRESHOLD)
-    order = np.argsort(-np.where(hit, local, -np.inf))
-    return [labels[k] for k in order if hit[k]]
-
-
-def _fine(prep, comb, s0, n=17):
-    """Peak of the comb correlation near s0 evaluated directly on a lag grid 8x finer than the
-    FFT's (removes the sub-step bias of a parabola through three coarse lags): (s, err)."""
-    grid, h = prep["grid"], prep["h"]
-    d, var = prep[comb.data], prep["var"]
-    c = comb.rest_ln + s0
-    inside = (c >= grid[0]) & (c <= grid[-1])
-    if not inside.any():
-        return s0, np.nan
-    c, w, sig = c[inside], comb.weights[inside], comb.sigmas[inside]
-    half = int(np.ceil(4 * sig.max() / h)) + 3
-    i0 = np.clip(np.round((c - grid[0]) / h).astype(int), 0, len(grid) - 1)
-    idx = np.clip(i0[:, None] + np.arange(-half, half + 1)[None, :], 0, len(grid) - 1)
-    x = grid[idx] - c[:, None]  # offset of each grid point from its tooth at s0
-    dd, vv = d[idx], var[idx]
-    offs = np.linspace(-1.5 * h, 1.5 * h, n)
-    t = w[None, :, None] * np.exp(-0.5 * ((x[None] - offs[:, None, None])
-                                          / sig[None, :, None]) ** 2)
-    num = np.einsum("klm,lm->k", t, dd)
-    den = np.einsum("klm,lm->k", t * t, vv)
-    score = np.where(den > 0, num / np.sqrt(np.where(den > 0, den, 1.0)), 0.0)
-    k = int(np.argmax(score))
-    if 0 < k < n - 1:
-        s_fine, _, _ = _refine(offs, score, k)
-    else:
-        s_fine = offs[k]
-    return s0 + float(s_fine), np.nan
-
-
-def _features(comb, lines):
-    """Number of separate features among matched lines (lines closer than three tooth widths,
-    e.g. Ca II H and Hε, count once)."""
-    pos = {lab: (r, sg) for lab, r, sg in zip(comb.labels, comb.rest_ln, comb.sigmas)}
-    xs = sorted(pos[lab] for lab in lines if lab in pos)
-    n, last = 0, -np.inf
-    for r, sg in xs:
-        if r - last > 3 * sg:
-            n += 1
-            last = r
-    return n
-
-
 def _peaks(prep, comb, res, s_min, s_max, n_keep, plausible=True):
     """Best peaks of one kind: list of dicts (s, score, err, lines)."""
     from scipy import signal  # noqa: PLC0415
@@ -261,12 +184,12 @@ def _peaks(prep, comb, res, s_min, s_max, n_keep, plausible=True):
     idx = idx[np.argsort(score[idx])[::-1]][:n_keep]
     out = []
     for i in idx:
-        s, peak, s_err = _refine(lag, score, i)
+        s, peak, s_err = scan_kinds.refine(lag, score, i)
         if not s_min - prep["h"] <= s <= s_max + prep["h"]:
             continue
         s = float(np.clip(s, s_min, s_max))
-        lines = _matched(prep, comb, s) if len(comb) else []
-        if len(comb) > 1 and plausible and _features(comb, lines) < 2:
+        lines = scan_kinds.matched(prep, comb, s, MATCH_THRESHOLD) if len(comb) else []
+        if len(comb) > 1 and plausible and scan_kinds.features(comb, lines) < 2:
             peak *= SINGLE_LINE_FACTOR
         out.append(dict(s=s, score=float(peak), err=float(s_err), lines=lines))
     out.sort(key=lambda c: -c["score"])
@@ -393,7 +316,8 @@ def _search(spectrum, plan, top, template=None, step=None, window=None, mask_sky
     cands = []
     for c in kept[:top]:
         if len(c["comb"]) and c["plausible"]:
-            c["s"] = float(np.clip(_fine(prep, c["comb"], c["s"])[0], c["s_min"], c["s_max"]))
+            s_fine = scan_kinds.fine(prep, c["comb"], c["s"])[0]
+            c["s"] = float(np.clip(s_fine, c["s_min"], c["s_max"]))
         s, e = c["s"], c["err"]
         kw = {}
         if c["vel"]:

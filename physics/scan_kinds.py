@@ -29,7 +29,7 @@ from scipy import signal
 from scipy.signal._peak_finding_utils import PeakPropertyWarning as _PeakPropertyWarning
 
 __all__ = ["KINDS", "KIND_SETS", "WEIGHT_CAP", "BROAD_FWHM_KMS", "Comb", "comb_for", "Correlator",
-           "line_width", "template_length"]
+           "line_width", "template_length", "refine", "matched", "fine", "features"]
 
 C_KMS = 299792.458  # km/s, exact (SI definition)
 KIND_SETS = {"emission-galaxy": "galaxy-emission", "absorption-galaxy": "galaxy-absorption",
@@ -184,3 +184,85 @@ class Correlator:
         sel = (lag >= s_min - 2 * h) & (lag <= s_max + 2 * h) & valid
         return dict(lag=lag[sel], score=score[sel],
                     covered=None if covered is None else np.maximum(covered[sel], 0.0))
+
+
+def refine(lag, score, i):
+    if 0 < i < len(score) - 1:
+        y0, y1, y2 = score[i - 1], score[i], score[i + 1]
+        den = y0 - 2 * y1 + y2
+        h = lag[i + 1] - lag[i]
+        if den < 0:
+            off = 0.5 * (y0 - y2) / den
+            off = float(np.clip(off, -1.0, 1.0))
+            peak = y1 - 0.25 * (y0 - y2) * off
+            curv = den / h**2
+            err = 1.0 / np.sqrt(max(-peak * curv, 1e-300)) if peak > 0 else np.nan
+            return lag[i] + off * h, peak, err
+    return lag[i], score[i], np.nan
+
+
+def matched(prep, comb, s, threshold=3.0):
+    """Labels of the comb's lines at ln(1+z) = s with a local S/N above threshold."""
+    grid, cov, h, var = prep["grid"], prep["cov"], prep["h"], prep["var"]
+    d = prep[comb.data]
+    c = comb.rest_ln + s
+    inside = (c >= grid[0]) & (c <= grid[-1])
+    if not inside.any():
+        return []
+    c, w, sig = c[inside], comb.weights[inside], comb.sigmas[inside]
+    labels = [lab for lab, k in zip(comb.labels, inside) if k]
+    i0 = np.clip(np.round((c - grid[0]) / h).astype(int), 0, len(grid) - 1)
+    half = int(np.ceil(3 * sig.max() / h)) + 1
+    idx = i0[:, None] + np.arange(-half, half + 1)[None, :]
+    ok = (idx >= 0) & (idx < len(grid))
+    idx = np.clip(idx, 0, len(grid) - 1)
+    g = np.exp(-0.5 * ((grid[idx] - c[:, None]) / sig[:, None]) ** 2) * cov[idx] * ok
+    g *= np.abs(grid[idx] - c[:, None]) <= 3 * sig[:, None] + h
+    norm = np.sqrt(np.sum(var[idx] * g**2, axis=1))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        local = np.sign(w) * np.sum(d[idx] * g, axis=1) / norm
+    hit = (norm > 0) & (cov[i0] > 0) & (local >= threshold)
+    order = np.argsort(-np.where(hit, local, -np.inf))
+    return [labels[k] for k in order if hit[k]]
+
+
+def fine(prep, comb, s0, n=17):
+    """Peak of the comb correlation near s0 evaluated directly on a lag grid 8x finer than the
+    FFT's (removes the sub-step bias of a parabola through three coarse lags): (s, err)."""
+    grid, h = prep["grid"], prep["h"]
+    d, var = prep[comb.data], prep["var"]
+    c = comb.rest_ln + s0
+    inside = (c >= grid[0]) & (c <= grid[-1])
+    if not inside.any():
+        return s0, np.nan
+    c, w, sig = c[inside], comb.weights[inside], comb.sigmas[inside]
+    half = int(np.ceil(4 * sig.max() / h)) + 3
+    i0 = np.clip(np.round((c - grid[0]) / h).astype(int), 0, len(grid) - 1)
+    idx = np.clip(i0[:, None] + np.arange(-half, half + 1)[None, :], 0, len(grid) - 1)
+    x = grid[idx] - c[:, None]  # offset of each grid point from its tooth at s0
+    dd, vv = d[idx], var[idx]
+    offs = np.linspace(-1.5 * h, 1.5 * h, n)
+    t = w[None, :, None] * np.exp(-0.5 * ((x[None] - offs[:, None, None])
+                                          / sig[None, :, None]) ** 2)
+    num = np.einsum("klm,lm->k", t, dd)
+    den = np.einsum("klm,lm->k", t * t, vv)
+    score = np.where(den > 0, num / np.sqrt(np.where(den > 0, den, 1.0)), 0.0)
+    k = int(np.argmax(score))
+    if 0 < k < n - 1:
+        s_fine, _, _ = refine(offs, score, k)
+    else:
+        s_fine = offs[k]
+    return s0 + float(s_fine), np.nan
+
+
+def features(comb, lines):
+    """Number of separate features among matched lines (lines closer than three tooth widths,
+    e.g. Ca II H and Hε, count once)."""
+    pos = {lab: (r, sg) for lab, r, sg in zip(comb.labels, comb.rest_ln, comb.sigmas)}
+    xs = sorted(pos[lab] for lab in lines if lab in pos)
+    n, last = 0, -np.inf
+    for r, sg in xs:
+        if r - last > 3 * sg:
+            n += 1
+            last = r
+    return n

@@ -262,5 +262,5 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
         q = (np.array([lo, hi]) * u.AA).to_value(unit, equivalencies=u.spectral())
         masked_q.append((float(q.min()), float(q.max()), why))
     return dict(grid=grid, d=d, d_wide=d_wide, cov=cov, var=var, snr=snr, good=good,
-                lnlam=lnlam, h=h, dln=dpix, width_em=w_em, width_abs=w_abs, medium=medium, is_freq=is_freq, unit=unit,
-                masked=masked_q, notes=notes)
+                lnlam=lnlam, h=h, dln=dpix, width_em=w_em, width_abs=w_abs, medium=medium,
+                is_freq=is_freq, unit=unit, masked=masked_q, notes=notes)

@@ -87,7 +87,8 @@ def _generated(labels, z, seed, lam=(3800.0, 9200.0), npix=5000, amp=25.0, sigma
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6])
 def test_few_lines_truth_in_top(seed):
     rng = np.random.default_rng(1000 + seed)
-    sets = [("Hα", "Hβ"), ("[O III] 5007", "Hβ", "[O III] 4959"), ("[O II] 3726", "[O II] 3729", "Hβ"),
+    sets = [("Hα", "Hβ"), ("[O III] 5007", "Hβ", "[O III] 4959"),
+            ("[O II] 3726", "[O II] 3729", "Hβ"),
             ("Hα", "[N II] 6583", "[S II] 6716")]
     labels = sets[seed % len(sets)]
     lo = max(3800.0 / _rest(lab).to_value(u.AA) for lab in labels) - 1
