@@ -26,18 +26,18 @@ line with its neighbours (Hα with [N II]) counts as several features, so such a
 penalised; lines closer than three tooth widths (Ca II H and Hε) count once.
 
 Candidates within three tooth widths of a stronger one (of any kind) are the same reading and are
-merged into it.  The result carries a `confidence` that the first candidate is right: a logistic
-function of the first score s1 and of its margin over the second reading s2 (at least 0.1),
-``1 / (1 + exp(-(a + b ln s1 + c ln(s1 / s2))))`` with the coefficients of
-`CONFIDENCE_COEFFS`.  They were fitted by maximum likelihood (iteratively reweighted least
-squares) to 586 readings: 540 synthetic spectra of every kind (emission and absorption
-galaxies, quasars, stars, sky fibres and pure noise, 30 each at S/N 3, 10 and 30, from the
-tests' own generator tests/synthetic_spectra.py) and the 46 readable survey spectra of ../shared/realdata (SDSS and LAMOST pipeline redshifts).  A reading
-is right when |dz| < 0.003 (1 + z) (stars: 30 km/s); the first reading of a sky fibre or of noise
-is wrong by definition.  On those readings, 98% of the ones given a confidence >= 0.9 are right
-(77% of those in 0.5-0.9, 24% in 0.1-0.5, 3% below 0.1).  tests/benchmarks/bench_scan.py repeats
-the fit on fresh seeds and prints the coefficients and the calibration table.  ``no_redshift``
-is set when the confidence is below `NO_REDSHIFT_CONFIDENCE`.
+merged into it. The result carries a `confidence` that the first candidate is right: a logistic
+function of the first score s1 and of its margin over the second reading s2 (at least 0.1), ``1 /
+(1 + exp(-(a + b ln s1 + c ln(s1 / s2))))`` with the coefficients of `CONFIDENCE_COEFFS`. They were
+fitted by maximum likelihood (iteratively reweighted least squares) to 586 readings: 540 synthetic
+spectra of every kind (emission and absorption galaxies, quasars, stars, sky fibres and pure noise,
+30 each at S/N 3, 10 and 30, from the tests' own generator tests/synthetic_spectra.py) and the 46
+readable survey spectra of ../shared/realdata (SDSS and LAMOST pipeline redshifts). A reading is
+right when |dz| < 0.003 (1 + z) (stars: 30 km/s); the first reading of a sky fibre or of noise is
+wrong by definition. On those readings, 98% of the ones given a confidence >= 0.9 are right (77% of
+those in 0.5-0.9, 24% in 0.1-0.5, 3% below 0.1). tests/benchmarks/bench_scan.py repeats the fit on
+fresh seeds and prints the coefficients and the calibration table. ``no_redshift`` is set when the
+confidence is below `NO_REDSHIFT_CONFIDENCE`.
 """
 
 from dataclasses import dataclass, field
