@@ -6,10 +6,19 @@ the results into an ECSV catalogue with one row per spectrum.
 
 No work is lost: as soon as a spectrum is done its result is written atomically as a small JSON
 record in ``<catalog>.parts/``, named by a hash of (absolute path, modification time, size,
-settings).  A rerun loads the records already there and measures only the rest; records of
-failed spectra (flag ``bad_file`` or ``scan_failed``) are retried.  Interrupting a run (Ctrl-C,
-crash) keeps every record already written.  The catalogue itself is written atomically at the
-end, rows sorted by file.
+settings).  A rerun loads the records already there and measures only the rest; a file that
+failed (flag ``bad_file`` or ``scan_failed``) and has not changed since is not tried again unless
+``retry_failed=True``.  Interrupting a run (Ctrl-C, crash) keeps every record already written.
+The catalogue itself is written atomically at the end, rows sorted by file.
+
+Nothing is lost to another run or overwritten: a run holds a lock on ``<catalog>.parts/lock``
+(a second run on the same catalogue stops at once with
+`~zline.physics._survey.CatalogLockedError`, naming the first); an existing catalogue is
+replaced only if zline wrote it as a catalogue (an ECSV beside its ``.parts`` folder), and only
+with ``overwrite=True`` when the new one would drop spectra the old one has.  Pool workers end
+by themselves when the run that started them dies.  Every assumption the reader made about a
+file (``spectrum.meta["zline"]["assumptions"]``) sets the row's ``assumed`` flag and is listed in
+its ``assumptions`` column.
 
 `write_synthetic_spectra` makes invented, seeded emission-line spectra at known redshifts for
 tests and benchmarks of the batch mechanics.
@@ -24,16 +33,19 @@ import sys
 
 import numpy as np
 
+from zline.physics._survey import CatalogLockedError, catalog_lock, progress_bar, watch_parent
+from zline.physics._synthetic import write_synthetic_spectra
+
 __all__ = ["BATCH_VERSION", "FLAGS", "AMBIGUOUS_RATIO", "LOW_SNR_SCORE", "SPECTRUM_SUFFIXES",
            "expand_inputs", "record_key", "measure_one", "measure_survey", "parts_directory",
-           "text_progress", "write_synthetic_spectra", "catalog_row", "record_correction",
-           "CORRECTION_COLUMNS"]
+           "text_progress", "progress_bar", "write_synthetic_spectra", "catalog_row",
+           "record_correction", "CORRECTION_COLUMNS", "CatalogLockedError"]
 
 #: Columns a checked redshift adds to a catalogue row; the blind ``z`` is never changed.
 CORRECTION_COLUMNS = ("z_checked", "z_checked_err", "checked_by", "checked_at", "check_note")
 
 #: Version of the record format; part of every record key.
-BATCH_VERSION = 1
+BATCH_VERSION = 2
 
 #: Row flags and their meaning.
 FLAGS = {
@@ -43,6 +55,8 @@ FLAGS = {
     "scan_failed": "the spectrum was read but the redshift scan refused it (see 'error')",
     "no_redshift": "no reading is convincing (confidence below "
     "zline.physics.scan.NO_REDSHIFT_CONFIDENCE): a sky fibre, noise, or too faint",
+    "assumed": "the reader assumed something about the axis, units, medium or a damaged file "
+               "(see 'assumptions')",
 }
 
 #: A second candidate scoring at least this fraction of the best makes the row ``ambiguous``.
@@ -54,7 +68,7 @@ LOW_SNR_SCORE = 5.0
 #: File name endings picked up when a directory is given.
 SPECTRUM_SUFFIXES = (".fits", ".fits.gz", ".fit", ".fts", ".fit.gz", ".fts.gz")
 
-_RETRIED = ("bad_file", "scan_failed")
+_FAILED = ("bad_file", "scan_failed")
 
 
 def expand_inputs(inputs):
@@ -169,7 +183,8 @@ def measure_one(path, settings):
     dict
         Plain-JSON record: ``file``, ``hdu``, ``z``, ``z_err``, ``score``, ``n_matched``,
         ``lines`` (matched labels, comma list), ``z_2``, ``score_2``, ``class``, ``confidence``,
-        ``flags`` (list), ``error``.
+        ``flags`` (list), ``error``, ``assumptions`` (list of the reader's assumptions about the
+        file).
     """
     import warnings  # noqa: PLC0415
 
@@ -178,7 +193,7 @@ def measure_one(path, settings):
 
     rec = {"file": path, "hdu": "", "z": None, "z_err": None, "score": None, "n_matched": 0,
            "lines": "", "z_2": None, "score_2": None, "class": "", "confidence": None,
-           "flags": [], "error": ""}
+           "flags": [], "error": "", "assumptions": []}
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -188,6 +203,7 @@ def measure_one(path, settings):
         rec["error"] = f"{type(exc).__name__}: {exc}"
         return rec
     rec["hdu"] = str(spectrum.meta.get("zline", {}).get("hdu", ""))
+    rec["assumptions"] = [str(a) for a in spectrum.meta.get("zline", {}).get("assumptions", [])]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -250,10 +266,10 @@ def parts_directory(catalog):
     return os.fspath(catalog) + ".parts"
 
 
-def _write_json_atomic(path, obj):
+def _write_json_atomic(path, obj, kind="batch-record"):
     from zline.physics._atomic import atomic_path  # noqa: PLC0415
 
-    with atomic_path(path, overwrite=True) as tmp, open(tmp, "w") as fh:
+    with atomic_path(path, overwrite=True, kind=kind) as tmp, open(tmp, "w") as fh:
         json.dump(obj, fh)  # no fsync: after a power cut an empty record is re-measured
 
 
@@ -288,7 +304,8 @@ def _run_local(todo, settings, workers, on_done):
         return
     from concurrent.futures import ProcessPoolExecutor, as_completed  # noqa: PLC0415
 
-    pool = ProcessPoolExecutor(max_workers=workers)
+    pool = ProcessPoolExecutor(max_workers=workers, initializer=watch_parent,
+                               initargs=(os.getpid(),))
     try:
         futures = {pool.submit(measure_one, p, settings): p for p in todo}
         for fut in as_completed(futures):
@@ -331,6 +348,8 @@ def _catalog_table(records, settings):
                                     for r in records], dtype=float)
     table["flags"] = np.array([",".join(r["flags"]) for r in records], dtype=str)
     table["error"] = np.array([r["error"] for r in records], dtype=str)
+    table["assumptions"] = np.array(["; ".join(r.get("assumptions", [])) for r in records],
+                                    dtype=str)
     table["z"].description = "best redshift candidate"
     table["z_err"].description = "1-sigma error of z from the correlation peak"
     table["score"].description = "scan score of the best candidate"
@@ -340,13 +359,15 @@ def _catalog_table(records, settings):
                                   "absorption-galaxy, quasar or star")
     table["confidence"].description = "calibrated probability that z (the best candidate) is right"
     table["flags"].description = "comma list: " + "; ".join(f"{k} = {v}" for k, v in FLAGS.items())
+    table["assumptions"].description = "what the reader assumed about the file ('; ' list)"
     table.meta["zline_batch"] = {**settings, "ambiguous_ratio": AMBIGUOUS_RATIO,
                                  "low_snr_score": LOW_SNR_SCORE, "n_spectra": len(records)}
     return table
 
 
 def measure_survey(inputs, catalog, z_min=0.0, z_max=7.0, lines=None, workers=None,
-                   client=None, progress=None, **scan_options):
+                   client=None, progress=None, retry_failed=False, overwrite=False,
+                   **scan_options):
     """Blind redshifts of many spectra into one ECSV catalogue, resumable.
 
     Parameters
@@ -354,21 +375,29 @@ def measure_survey(inputs, catalog, z_min=0.0, z_max=7.0, lines=None, workers=No
     inputs : str, path-like or iterable of them
         Files, directories or glob patterns (see `expand_inputs`).
     catalog : str or path-like
-        ECSV catalogue written at the end (atomically, replacing an older one).  Records go to
-        ``<catalog>.parts/`` as they finish; a rerun reuses them.
+        ECSV catalogue written at the end (atomically).  Records go to ``<catalog>.parts/`` as
+        they finish; a rerun reuses them.  An existing catalogue is updated only if zline wrote
+        it as a catalogue, and only with ``overwrite`` if this run would drop some of its rows.
+        A name ending like a spectrum (``.fits`` ...) is refused.
     z_min, z_max : float
         Redshift range searched.
     lines : str or None
         Line set of `zline.physics.catalog.LINE_SETS`; None searches every kind of spectrum.
     workers : int, optional
         Local worker processes (default: ``os.cpu_count()``); 1 runs in this process.
-        Ignored when ``client`` is given.
+        Ignored when ``client`` is given.  Workers end by themselves if this process dies.
     client : `distributed.Client`, optional
         Run each file's measurement on this Dask cluster instead.
     progress : callable, optional
         Called as ``progress(done, total)`` after each record (``done`` counts records reused
-        from an earlier run).  An exception it raises (e.g. KeyboardInterrupt) stops the run;
-        records already written stay.
+        from an earlier run); `progress_bar` makes one.  An exception it raises (e.g.
+        KeyboardInterrupt) stops the run; records already written stay.
+    retry_failed : bool
+        Measure again files whose earlier record failed (``bad_file``, ``scan_failed``) even if
+        they have not changed (a changed file is always measured again).
+    overwrite : bool
+        Allow the new catalogue to drop rows of an existing zline catalogue (spectra that are
+        not among this run's inputs).
     **scan_options
         ``klass`` (a kind of `zline.physics.scan.KINDS`), ``v_min_kms``/``v_max_kms`` (a
         velocity search), ``mask_sky`` (bool), ``template`` (path of a rest-frame template).
@@ -378,111 +407,103 @@ def measure_survey(inputs, catalog, z_min=0.0, z_max=7.0, lines=None, workers=No
     `~astropy.table.Table`
         One row per spectrum, sorted by ``file``: ``file``, ``hdu``, ``z``, ``z_err``, ``score``,
         ``n_matched``, ``lines``, ``z_2``, ``score_2``, ``class``, ``confidence``,
-        ``flags`` (comma list of `FLAGS`),
-        ``error`` (message for a failed file; NaN measurements there).
+        ``flags`` (comma list of `FLAGS`), ``error`` (message for a failed file; NaN
+        measurements there), ``assumptions``.  ``meta["zline_batch"]["run"]`` counts this run's
+        ``new``, ``reused`` and ``failed`` rows and the failed ones reused without a retry
+        (``failed_reused``).
 
     Raises
     ------
     ValueError
-        Bad inputs, range, line set or ``workers``.
+        Bad inputs, range, line set, ``workers`` or catalogue name.
+    FileExistsError
+        The catalogue exists and is not a zline catalogue (never replaced), or this run would
+        drop some of its rows and ``overwrite`` is False.
+    CatalogLockedError
+        Another run is writing the same catalogue (this one does nothing).
     """
     settings = _settings(z_min, z_max, lines, **scan_options)
     if workers is None:
         workers = os.cpu_count() or 1
     if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
         raise ValueError(f"measure_survey: 'workers' must be a positive integer; got {workers!r}")
+    catalog = os.fspath(catalog)
+    if catalog.lower().endswith(SPECTRUM_SUFFIXES):
+        raise ValueError(f"measure_survey: the catalogue {catalog!r} is named like a spectrum; "
+                         f"the catalogue is an ECSV table: give a name such as 'survey.ecsv'")
     paths = expand_inputs(inputs)
+    _check_catalog(catalog, paths, overwrite)
     parts = parts_directory(catalog)
-    os.makedirs(parts, exist_ok=True)
+    with catalog_lock(catalog, parts):
+        _check_catalog(catalog, paths, overwrite)  # again, now that no other run can write it
+        return _survey(paths, catalog, parts, settings, workers, client, progress, retry_failed)
+
+
+def _check_catalog(catalog, paths, overwrite):
+    """Refuse a catalogue zline did not write, or one whose rows this run would drop."""
+    from zline.physics._atomic import check_replaceable  # noqa: PLC0415
+
+    if not os.path.lexists(catalog):
+        return
+    check_replaceable(catalog, "catalog")
+    if overwrite:
+        return
+    from astropy.table import Table  # noqa: PLC0415
+
+    old = [str(f) for f in Table.read(catalog, format="ascii.ecsv")["file"]]
+    dropped = sorted(set(old) - set(paths))
+    if dropped:
+        raise FileExistsError(
+            f"{catalog!r} holds {len(dropped)} spectra that are not among this run's inputs "
+            f"(e.g. {dropped[0]!r}); give those inputs too, choose another catalogue, or pass "
+            f"overwrite=True (zline batch --overwrite) to replace it without them")
+
+
+def _survey(paths, catalog, parts, settings, workers, client, progress, retry_failed):
     records, todo, keys = {}, [], {}
     for path in paths:
         keys[path] = record_key(path, settings)
         rec = _load_record(os.path.join(parts, keys[path] + ".json"))
-        if rec is not None and rec.get("file") == path \
-                and not any(f in _RETRIED for f in rec.get("flags", [])):
+        if rec is not None and rec.get("file") == path and not (
+                retry_failed and any(f in _FAILED for f in rec.get("flags", []))):
             records[path] = rec
         else:
             todo.append(path)
+    reused = dict(records)
     total = len(paths)
     if progress is not None:
         progress(len(records), total)
 
     def on_done(path, rec):
+        if rec.get("assumptions") and "assumed" not in rec["flags"]:
+            rec["flags"] = [*rec["flags"], "assumed"]
         _write_json_atomic(os.path.join(parts, keys[path] + ".json"), rec)
         records[path] = rec
         if progress is not None:
             progress(len(records), total)
 
-    if todo:
-        if client is not None:
-            _run_dask(todo, settings, client, on_done)
-        else:
-            _run_local(todo, settings, min(int(workers), len(todo)), on_done)
+    try:
+        if todo:
+            if client is not None:
+                _run_dask(todo, settings, client, on_done)
+            else:
+                _run_local(todo, settings, min(int(workers), len(todo)), on_done)
+    finally:
+        if progress is not None and hasattr(progress, "close"):
+            progress.close()
     table = _catalog_table(list(records.values()), settings)
+
+    def failed(recs):
+        return sum(any(f in _FAILED for f in r["flags"]) for r in recs)
+
+    table.meta["zline_batch"]["run"] = {
+        "new": len(records) - len(reused), "reused": len(reused),
+        "failed": failed(records.values()), "failed_reused": failed(reused.values())}
     _merge_corrections(table, _load_corrections(catalog))
     from zline.physics.tables import write_table  # noqa: PLC0415
 
-    write_table(table, catalog, format="ecsv", overwrite=True)
+    write_table(table, catalog, format="ecsv", overwrite=True, kind="catalog")
     return table
-
-
-def write_synthetic_spectra(directory, n, seed=0, npix=3000, z_range=(0.05, 0.40)):
-    """Write ``n`` invented emission-line spectra at seeded redshifts (for tests and benchmarks).
-
-    Each file ``syn_NNNN.fits`` has a 1-D primary image with a linear vacuum-wavelength WCS
-    (3700-9400 Angstrom), an ``ERR`` extension (1 sigma), a flat continuum with noise and the
-    lines of the "galaxy-emission" set at their catalogue strengths (the default z range keeps
-    Halpha inside the data: a line cut by the edge biases the scan); the true redshift is in the
-    header keyword ``ZTRUE``.  Invented data: no real object.
-
-    Returns
-    -------
-    dict
-        File path (absolute str) -> true redshift.
-    """
-    import astropy.units as u  # noqa: PLC0415
-    from astropy.io import fits  # noqa: PLC0415
-
-    from zline.physics.catalog import line_set  # noqa: PLC0415
-
-    os.makedirs(directory, exist_ok=True)
-    rng = np.random.default_rng(seed)
-    lam = np.linspace(3700.0, 9400.0, npix)
-    step = lam[1] - lam[0]
-    emis = line_set("galaxy-emission")
-    rest = emis["rest"].to_value(u.AA)
-    strength = np.asarray(emis["strength"], dtype=float)
-    truth = {}
-    for i in range(n):
-        z = float(rng.uniform(*z_range))
-        obs = rest * (1 + z)
-        sigma = np.hypot(obs * 90.0 / 299792.458, 0.8 * step)
-        inside = (obs > lam[0] - 30) & (obs < lam[-1] + 30)
-        model = np.ones_like(lam)
-        amp = 60.0 * rng.uniform(0.7, 1.3)
-        for c, s, w in zip(obs[inside], sigma[inside], strength[inside]):
-            model += amp * w / (np.sqrt(2 * np.pi) * s) * np.exp(-0.5 * ((lam - c) / s) ** 2)
-        err = np.full_like(lam, 0.15)
-        flux = model + rng.normal(0.0, 1.0, npix) * err
-        hdr = fits.Header()
-        hdr["CTYPE1"] = "WAVE"
-        hdr["CUNIT1"] = "Angstrom"
-        hdr["CRPIX1"] = 1.0
-        hdr["CRVAL1"] = lam[0]
-        hdr["CDELT1"] = step
-        hdr["BUNIT"] = "1e-17 erg / (s cm2 Angstrom)"
-        hdr["ZTRUE"] = (z, "invented true redshift")
-        hdr["OBJECT"] = f"ZL-SYN-{seed}-{i:04d}"
-        ehdr = fits.Header()
-        ehdr["EXTNAME"] = "ERR"
-        for key in ("CTYPE1", "CUNIT1", "CRPIX1", "CRVAL1", "CDELT1", "BUNIT"):
-            ehdr[key] = hdr[key]
-        path = os.path.abspath(os.path.join(directory, f"syn_{i:04d}.fits"))
-        fits.HDUList([fits.PrimaryHDU(flux.astype(np.float32), header=hdr),
-                      fits.ImageHDU(err.astype(np.float32), header=ehdr)]).writeto(
-                          path, overwrite=True)
-        truth[path] = z
-    return truth
 
 
 # ---------------------------------------------------------------- corrections from the widget
@@ -572,7 +593,8 @@ def record_correction(catalog, file, z, z_err=None, who=None, note=""):
     The blind ``z`` stays as measured; the checked value goes into `CORRECTION_COLUMNS`, and the
     full history (who, when, old and new z) into ``meta["zline_corrections"]`` and a log in
     ``<catalog>.parts/corrections.json``, so a later ``zline batch`` rerun keeps it.  Both files are
-    replaced atomically.
+    replaced atomically, under the catalogue's lock (waiting up to 10 s for a batch run to end;
+    then `CatalogLockedError`).
 
     Returns
     -------
@@ -599,10 +621,11 @@ def record_correction(catalog, file, z, z_err=None, who=None, note=""):
                   "z_blind": float(entry["z"]), "who": who or default_who,
                   "when": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
                   "note": str(note)}
-    log = _load_corrections(catalog) + [correction]
-    os.makedirs(parts_directory(catalog), exist_ok=True)
-    _write_json_atomic(_corrections_path(catalog), log)
-    table = Table.read(catalog, format="ascii.ecsv")
-    _merge_corrections(table, log)
-    write_table(table, catalog, format="ecsv", overwrite=True)
+    # a batch run on this catalogue would rewrite it: wait a little for it, else refuse
+    with catalog_lock(catalog, parts_directory(catalog), wait=10.0, who="a checked redshift"):
+        log = _load_corrections(catalog) + [correction]
+        _write_json_atomic(_corrections_path(catalog), log, kind="corrections")
+        table = Table.read(catalog, format="ascii.ecsv")
+        _merge_corrections(table, log)
+        write_table(table, catalog, format="ecsv", overwrite=True, kind="catalog")
     return correction

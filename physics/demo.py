@@ -28,7 +28,7 @@ import astropy.units as u
 import numpy as np
 from astropy.io import fits
 
-from zline.physics._atomic import atomic_path
+from zline.physics._atomic import atomic_path, check_replaceable
 
 __all__ = ["DEMO_FILES", "DEMO_TRUTH", "write_demo_spectra", "demo_hdulist"]
 
@@ -292,7 +292,8 @@ def write_demo_spectra(directory, overwrite=False, skip_existing=False):
     directory : str or path-like
         Created if missing.
     overwrite : bool
-        Replace files that already exist.
+        Replace files that already exist -- only zline demo spectra (``ORIGIN = 'zline
+        demo-data'``); any other file of that name is refused.
     skip_existing : bool
         Leave files that already exist untouched (and still return their paths).
 
@@ -304,8 +305,9 @@ def write_demo_spectra(directory, overwrite=False, skip_existing=False):
     Raises
     ------
     FileExistsError
-        A file exists and neither ``overwrite`` nor ``skip_existing`` is set (raised before
-        anything is written; the message names the file).
+        A file exists and neither ``overwrite`` nor ``skip_existing`` is set, or ``overwrite``
+        is set and an existing file is not a zline demo spectrum (raised before anything is
+        written; the message names the file).
     """
     if overwrite and skip_existing:
         raise ValueError("Arguments 'overwrite' and 'skip_existing' exclude each other; "
@@ -321,6 +323,9 @@ def write_demo_spectra(directory, overwrite=False, skip_existing=False):
                     f"{path} already exists; pass overwrite=True to replace it or "
                     "skip_existing=True to keep it."
                 )
+    if overwrite:
+        for path in paths.values():
+            check_replaceable(path, "demo-spectrum")
     directory.mkdir(parents=True, exist_ok=True)
     written = {}
     for name, path in paths.items():
@@ -329,7 +334,7 @@ def write_demo_spectra(directory, overwrite=False, skip_existing=False):
             continue
         buf = io.BytesIO()
         demo_hdulist(name).writeto(buf, checksum=False)
-        with atomic_path(path, overwrite=overwrite,
+        with atomic_path(path, overwrite=overwrite, kind="demo-spectrum",
                          exists_message=f"{path} already exists; pass overwrite=True to replace it "
                                         "or skip_existing=True to keep it.") as tmp:
             with open(tmp, "wb") as fh:

@@ -15,14 +15,25 @@ Conventions
   `specutils.analysis.equivalent_width`, which returns ``integral(1 - F/C)`` (negative for
   emission).
 * ``fwhm_kms`` is ``c * fwhm / center`` (the same to first order for wavelength and frequency axes).
-* Uncertainties come from the covariance of the fit, which is scaled by the flux errors of the
-  spectrum.  Only when the spectrum carries no uncertainty is the covariance scaled by the
-  reduced chi-square (``errors_from == "scatter"``).
+* Uncertainties come from the covariance of the fit: the inverse of J^T J over the full
+  Jacobian (`zline.physics._fitmodel.covariance`), scaled by the flux errors of the spectrum.
+  Only when the spectrum carries no uncertainty is it scaled by the reduced chi-square
+  (``errors_from == "scatter"``).  A parameter the data do not constrain (a singular normal
+  matrix, a centre at the edge of its search range, a width at its ceiling) makes the line
+  *not measured* (``measured`` False, ``reason`` says why) instead of giving it a tiny error.
+* Widths are bounded: the FWHM floor is the spectral resolution (`resolution_fwhm`: the
+  ``resolution`` entry of ``spectrum.meta["zline"]`` when the reader found one, else
+  `SAMPLING_FWHM_PIXELS` pixels); the ceiling depends on the line kind (`WIDTH_CEILING`).  A
+  width that settles on the floor is held there (the line is unresolved) and noted.
+* Detection is ``|S/N| >= DETECTION_SNR`` with the sign the line's ``kind`` expects (emission
+  and broad lines positive, absorption negative, ``"any"`` either).  A line not detected gets
+  an upper limit on the size of its flux: ``max(s F, 0) + UPPER_LIMIT_SIGMA * sigma_F`` with
+  ``s`` the expected sign and F, sigma_F from a fit with the profile held at its expected
+  centre and width; it holds at >= 99.87 % (one-sided 3 sigma) for any true flux >= 0.
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -31,9 +42,10 @@ import numpy as np
 from astropy.constants import c as _c
 from astropy.nddata import StdDevUncertainty
 from scipy.optimize import least_squares
-from scipy.special import voigt_profile
 
-__all__ = ["LineFit", "fit_line", "PROFILES", "DETECTION_SNR"]
+
+__all__ = ["LineFit", "Component", "fit_line", "resolution_fwhm", "PROFILES",
+           "KINDS", "DETECTION_SNR", "UPPER_LIMIT_SIGMA", "WIDTH_CEILING", "SAMPLING_FWHM_PIXELS"]
 
 PROFILES = {
     "gaussian": "Gaussian, parameters centre, sigma and integrated flux",
@@ -41,9 +53,21 @@ PROFILES = {
 }
 #: Signal-to-noise ratio below which a line counts as not detected and gets an upper limit.
 DETECTION_SNR = 3.0
+#: Upper limits are ``max(s F, 0) + UPPER_LIMIT_SIGMA * sigma_F``: one-sided 99.87 % confidence.
+UPPER_LIMIT_SIGMA = 3.0
+#: Line kinds: the sign detection expects (+1, -1 or 0 for either).
+KINDS = {"emission": 1, "broad": 1, "absorption": -1, "any": 0}
+#: FWHM ceiling by line kind (common practice: narrow nebular lines of galaxies stay below
+#: ~1500 km/s, stellar absorption features of galaxies below ~3000 km/s, quasar broad lines reach
+#: ~10 000 km/s); ``"any"``: the fit window.
+WIDTH_CEILING = {"emission": 1500 * u.km / u.s, "absorption": 3000 * u.km / u.s,
+                 "broad": 20000 * u.km / u.s, "any": None}
+#: FWHM floor in pixels when the spectrum states no resolution (a spectrum is sampled with about
+#: two pixels per resolution element, common practice; 1.5 leaves room for slightly
+#: under-sampled data).
+SAMPLING_FWHM_PIXELS = 1.5
 
 _C_KMS = _c.to_value(u.km / u.s)
-_GAUSS_FWHM = 2.0 * math.sqrt(2.0 * math.log(2.0))
 
 
 @dataclass
@@ -75,7 +99,10 @@ class LineFit:
     message : str
         Optimizer message.
     upper_limit : `~astropy.units.Quantity` or None
-        3-sigma flux upper limit when ``snr < 3`` (the line counts as not detected), else None.
+        Upper limit on the size of the flux when the line is not detected (see the module
+        docstring), else None.
+    upper_limit_sigma : `~astropy.units.Quantity` or None
+        sigma_F of the fixed-profile fit behind ``upper_limit``.
     label : str
         Name of the line.
     profile : str
@@ -89,6 +116,14 @@ class LineFit:
         Number of pixels used.
     components : tuple of LineFit
         All components of a blend (the first is this one); empty for the components themselves.
+    kind : str
+        One of `KINDS`: the sign `detected` expects.
+    measured : bool
+        False when a parameter of the line is not constrained by the data (see ``reason``).
+    reason : str
+        Why the line is not measured, or a note (e.g. the width held at the resolution floor).
+    fwhm_floor : `~astropy.units.Quantity` or None
+        The FWHM floor used (the resolution), in the spectral unit.
     """
 
     center: u.Quantity
@@ -115,12 +150,20 @@ class LineFit:
     window: u.Quantity | None = None
     n_pixels: int = 0
     components: tuple = ()
+    kind: str = "any"
+    measured: bool = True
+    reason: str = ""
+    fwhm_floor: u.Quantity | None = None
+    upper_limit_sigma: u.Quantity | None = None
     _model: Any = field(default=None, repr=False, compare=False)
 
     @property
     def detected(self) -> bool:
-        """True when ``snr >= 3``."""
-        return bool(np.isfinite(self.snr) and self.snr >= DETECTION_SNR)
+        """True when measured and ``|snr| >= DETECTION_SNR`` with the sign ``kind`` expects."""
+        if not (self.measured and np.isfinite(self.snr)):
+            return False
+        sign = KINDS.get(self.kind, 0)
+        return bool((abs(self.snr) if sign == 0 else sign * self.snr) >= DETECTION_SNR)
 
     def model_flux(self, spectral_axis):
         """Evaluate the fitted model (continuum + all components) on ``spectral_axis``.
@@ -145,12 +188,15 @@ class LineFit:
         """Plain-JSON dict of the measured values (values and unit strings)."""
         out = {}
         for key in ("center", "center_err", "flux", "flux_err", "fwhm", "fwhm_err", "fwhm_kms",
-                    "fwhm_kms_err", "ew", "ew_err", "continuum", "continuum_err", "upper_limit"):
+                    "fwhm_kms_err", "ew", "ew_err", "continuum", "continuum_err", "upper_limit",
+                    "upper_limit_sigma", "fwhm_floor"):
             q = getattr(self, key)
             out[key] = None if q is None else {"value": float(q.value), "unit": q.unit.to_string()}
         out.update(snr=float(self.snr), chi2_dof=float(self.chi2_dof), dof=int(self.dof),
                    success=bool(self.success), message=str(self.message), label=self.label,
-                   profile=self.profile, errors_from=self.errors_from, n_pixels=int(self.n_pixels))
+                   profile=self.profile, errors_from=self.errors_from, n_pixels=int(self.n_pixels),
+                   kind=self.kind, measured=bool(self.measured), reason=self.reason,
+                   detected=self.detected)
         out["window"] = (None if self.window is None else
                          {"value": [float(v) for v in self.window.value],
                           "unit": self.window.unit.to_string()})
@@ -220,95 +266,166 @@ def _regions(exclude, unit, label):
 
 
 # --------------------------------------------------------------------------------------------
-# model
+# resolution and components
 
 
-class _Model:
-    """Parameter bookkeeping for continuum polynomial + line components."""
+def resolution_fwhm(spectrum, position):
+    """Instrumental FWHM at ``position``: the FWHM floor of every fit.
 
-    def __init__(self, n_comp, order, ratios, rest, tie_center, tie_width, profile, x0, hw):
-        self.n_comp = n_comp
-        self.order = order
-        self.profile = profile
-        self.x0, self.hw = x0, hw
-        self.rest = rest  # relative positions mu_k / mu_0 (for tied centres) or None
-        self.tie_center = tie_center and n_comp > 1
-        self.tie_width = tie_width and n_comp > 1
-        self.ratios = ratios  # {i: (j, r)}: flux_i = r * flux_j
-        names = [f"c{k}" for k in range(order + 1)]
-        names += ["mu0"] if self.tie_center else [f"mu{k}" for k in range(n_comp)]
-        nw = 1 if self.tie_width else n_comp
-        names += [f"sig{k}" for k in range(nw)]
-        if profile == "voigt":
-            names += [f"gam{k}" for k in range(nw)]
-        self.free_flux = [k for k in range(n_comp) if k not in ratios]
-        names += [f"F{k}" for k in self.free_flux]
-        self.names = names
-        self.idx = {n: i for i, n in enumerate(names)}
+    Parameters
+    ----------
+    spectrum : `specutils.Spectrum`
+        ``spectrum.meta["zline"]["resolution"]`` (a resolving power R = lambda / FWHM, plain
+        number) or ``["resolution_fwhm"]`` (a Quantity: spectral width or velocity) is used when
+        present; otherwise `SAMPLING_FWHM_PIXELS` times the local pixel width.
+    position : `~astropy.units.Quantity`
+        Spectral position (any spectral unit).
 
-    def unpack(self, p):
-        cont = p[: self.order + 1]
-        if self.tie_center:
-            mu = p[self.idx["mu0"]] * self.rest
-        else:
-            mu = np.array([p[self.idx[f"mu{k}"]] for k in range(self.n_comp)])
-        if self.tie_width:
-            sig = p[self.idx["sig0"]] * mu / mu[0]
-            gam = (p[self.idx["gam0"]] * mu / mu[0]) if self.profile == "voigt" else None
-        else:
-            sig = np.array([p[self.idx[f"sig{k}"]] for k in range(self.n_comp)])
-            gam = (np.array([p[self.idx[f"gam{k}"]] for k in range(self.n_comp)])
-                   if self.profile == "voigt" else None)
-        flux = np.zeros(self.n_comp)
-        for k in self.free_flux:
-            flux[k] = p[self.idx[f"F{k}"]]
-        for i, (j, r) in self.ratios.items():
-            flux[i] = r * flux[j]
-        return cont, mu, sig, gam, flux
-
-    def continuum(self, p, x):
-        return np.polynomial.polynomial.polyval((x - self.x0) / self.hw, p[: self.order + 1])
-
-    def shapes(self, p, x):
-        _, mu, sig, gam, _ = self.unpack(p)
-        d = x[None, :] - mu[:, None]
-        if self.profile == "voigt":
-            return voigt_profile(d, sig[:, None], gam[:, None])
-        return np.exp(-0.5 * (d / sig[:, None]) ** 2) / (sig[:, None] * math.sqrt(2 * math.pi))
-
-    def __call__(self, p, x):
-        _, _, _, _, flux = self.unpack(p)
-        return self.continuum(p, x) + flux @ self.shapes(p, x)
-
-    def fwhm(self, p):
-        _, _, sig, gam, _ = self.unpack(p)
-        fg = _GAUSS_FWHM * np.abs(sig)
-        if self.profile != "voigt":
-            return fg
-        fl = 2.0 * np.abs(gam)
-        # Olivero & Longbothum 1977 approximation (from memory), accurate to ~0.02 %
-        return 0.5346 * fl + np.sqrt(0.2166 * fl**2 + fg**2)
+    Returns
+    -------
+    fwhm : `~astropy.units.Quantity`
+        In the spectrum's spectral unit.
+    source : str
+        ``"resolving power"``, ``"resolution FWHM"`` or ``"sampling"``.
+    """
+    axis = u.Quantity(spectrum.spectral_axis)
+    sunit = axis.unit
+    x = _as_spectral(position, sunit, "position", "resolution")
+    zmeta = spectrum.meta.get("zline", {}) if hasattr(getattr(spectrum, "meta", None), "get") else {}
+    res = zmeta.get("resolution") if hasattr(zmeta, "get") else None
+    width = zmeta.get("resolution_fwhm") if hasattr(zmeta, "get") else None
+    if isinstance(width, u.Quantity):
+        return _as_width(width, x, sunit, "resolution_fwhm", "resolution") * sunit, \
+            "resolution FWHM"
+    if res is not None and not isinstance(res, u.Quantity) and np.isfinite(res) and res > 0:
+        return abs(x) / float(res) * sunit, "resolving power"
+    xv = np.asarray(axis.value, dtype=float)
+    xv = np.sort(xv[np.isfinite(xv)])
+    k = int(np.clip(np.searchsorted(xv, x), 1, xv.size - 1))
+    lo, hi = max(k - 5, 0), min(k + 5, xv.size - 1)
+    dx = float(np.median(np.diff(xv[lo:hi + 1])))
+    return SAMPLING_FWHM_PIXELS * dx * sunit, "sampling"
 
 
-def _gradient(fun, p, steps):
-    f0 = np.atleast_1d(fun(p))
-    g = np.empty((f0.size, p.size))
-    for i in range(p.size):
-        h = steps[i]
-        pp, pm = p.copy(), p.copy()
-        pp[i] += h
-        pm[i] -= h
-        g[:, i] = (np.atleast_1d(fun(pp)) - np.atleast_1d(fun(pm))) / (2 * h)
-    return f0, g
+@dataclass
+class Component:
+    """One line of a `fit_group` model.
+
+    Attributes
+    ----------
+    label : str
+        Name of the line.
+    position : `~astropy.units.Quantity`
+        Expected observed position (start value; the fixed centre for ``centre="fixed"``).
+    centre : str
+        ``"shared"`` (moves with the other shared components at their rest ratios, one shift),
+        ``"free"`` (its own centre within ``position +- centre_range``), ``"fixed"`` or
+        ``"follow"`` (the centre of component ``follows`` times their rest ratio).
+    rest : `~astropy.units.Quantity` or None
+        Rest position (only the ratios between shared components matter); default ``position``.
+    centre_range : `~astropy.units.Quantity` or None
+        Half range of a free centre (spectral width or velocity); default: the whole window.
+    width_group : int
+        Components of one group share one velocity width.
+    fwhm : `~astropy.units.Quantity` or None
+        Start FWHM (spectral width or velocity); default 4 pixels, at least the floor.
+    fix_width : bool
+        Hold the group's width at ``fwhm`` (set on the group's first component).
+    kind : str
+        One of `KINDS` (expected sign and width ceiling).
+    follows : int or None
+        For ``centre="follow"``: index of the component whose centre this one follows.
+    """
+
+    label: str
+    position: u.Quantity
+    centre: str = "shared"
+    rest: u.Quantity | None = None
+    centre_range: u.Quantity | None = None
+    width_group: int = 0
+    fwhm: u.Quantity | None = None
+    fix_width: bool = False
+    kind: str = "any"
+    follows: int | None = None
 
 
 # --------------------------------------------------------------------------------------------
-# public
+# public: one line or a blend
+
+
+def _spectrum_arrays(spectrum, who="fit_line"):
+    flux_q = getattr(spectrum, "flux", None)
+    axis_q = getattr(spectrum, "spectral_axis", None)
+    if not isinstance(flux_q, u.Quantity) or axis_q is None:
+        raise TypeError(f"{who}: 'spectrum' must be a specutils.Spectrum, got "
+                        f"{type(spectrum).__name__}")
+    if flux_q.ndim != 1:
+        raise ValueError(f"{who}: 'spectrum' must be one-dimensional, got flux shape "
+                         f"{flux_q.shape}")
+    return (np.asarray(u.Quantity(axis_q).value, dtype=float), np.asarray(flux_q.value, float),
+            u.Quantity(axis_q).unit, flux_q.unit)
+
+
+
+
+def _components_of(center, components, label, sunit):
+    """(labels, rest values or None) of a fit_line call."""
+    if components is None:
+        return [label], None
+    if isinstance(components, dict):
+        labels = [str(k) for k in components]
+        rest = [_as_spectral(v, sunit, "components", label) for v in components.values()]
+    else:
+        rest = [_as_spectral(v, sunit, "components", label) for v in np.atleast_1d(components)]
+        labels = [label] + [f"{label} +{k}" for k in range(1, len(rest))]
+    if len(rest) < 1:
+        raise ValueError(f"fit_line: 'components' for line {label!r} is empty")
+    return labels, rest
+
+
+def _ties(tie_ratio, labels):
+    ratios = {}
+    n = len(labels)
+    for key, r in (tie_ratio or {}).items():
+        try:
+            i, j = key
+        except (TypeError, ValueError):
+            raise ValueError(f"fit_line: 'tie_ratio' keys must be (i, j) pairs, got {key!r}") from None
+        ii = [labels.index(k) if isinstance(k, str) and k in labels else k for k in (i, j)]
+        for k, orig in zip(ii, (i, j)):
+            if not isinstance(k, (int, np.integer)) or not 0 <= k < n:
+                raise ValueError(f"fit_line: 'tie_ratio' names component {orig!r}, which is not "
+                                 f"one of {labels} or an index 0..{n - 1}")
+        ratios[int(ii[0])] = (int(ii[1]), float(r))
+    for i, (j, _) in ratios.items():
+        if j in ratios or i == j:
+            raise ValueError(f"fit_line: 'tie_ratio' ties component {labels[i]!r} to "
+                             f"{labels[j]!r}, which is itself tied; tie to a free component")
+    return ratios
+
+
+def _default_window(window, mus, fw, dx, sunit, label):
+    span_lo, span_hi = float(min(mus)), float(max(mus))
+    if window is None:
+        half = max(8.0 * fw, 20.0 * dx)
+        return span_lo - half, span_hi + half
+    if not isinstance(window, u.Quantity):
+        raise TypeError(f"fit_line: 'window' for line {label!r} must be a Quantity (a "
+                        f"[low, high] pair or one full width), got {window!r}")
+    if window.isscalar or window.size == 1:
+        half = 0.5 * _as_width(window.reshape(()), mus[0], sunit, "window", label)
+        return span_lo - half, span_hi + half
+    if window.size == 2:
+        a, b = _as_spectral(window, sunit, "window", label)
+        return min(a, b), max(a, b)
+    raise ValueError(f"fit_line: 'window' for line {label!r} must be one width or a "
+                     f"[low, high] pair, got {window.size} values")
 
 
 def fit_line(spectrum, center, window=None, continuum_order=1, profile="gaussian",
              components=None, tie_width=False, tie_ratio=None, exclude=None, *,
-             fwhm=None, tie_center=True, label=None):
+             fwhm=None, tie_center=True, label=None, kind="any", fwhm_min=None,
+             fwhm_max=None):
     """Fit a line (or a blend of lines) with a local polynomial continuum.
 
     Parameters
@@ -344,6 +461,12 @@ def fit_line(spectrum, center, window=None, continuum_order=1, profile="gaussian
         For blends: tie centres through one redshift (default) or fit each freely.
     label : str, optional
         Name of the line for messages and the result.
+    kind : str
+        One of `KINDS`: the sign a detection needs and the width ceiling (`WIDTH_CEILING`);
+        ``"any"`` (default) accepts either sign, with the window as the ceiling.
+    fwhm_min, fwhm_max : `~astropy.units.Quantity`, optional
+        FWHM floor and ceiling (spectral width or km/s); default `resolution_fwhm` and the
+        kind's ceiling.
 
     Returns
     -------
@@ -357,250 +480,30 @@ def fit_line(spectrum, center, window=None, continuum_order=1, profile="gaussian
     TypeError
         Bare numbers where a Quantity is expected.
     """
-    flux_q = getattr(spectrum, "flux", None)
-    axis_q = getattr(spectrum, "spectral_axis", None)
-    if not isinstance(flux_q, u.Quantity) or axis_q is None:
-        raise TypeError(f"fit_line: 'spectrum' must be a specutils.Spectrum, got "
-                        f"{type(spectrum).__name__}")
-    if flux_q.ndim != 1:
-        raise ValueError(f"fit_line: 'spectrum' must be one-dimensional, got flux shape "
-                         f"{flux_q.shape}")
-    if profile not in PROFILES:
-        raise ValueError(f"fit_line: unknown profile {profile!r}; options: "
-                         f"{', '.join(sorted(PROFILES))}")
-    if not isinstance(continuum_order, (int, np.integer)) or not 0 <= continuum_order <= 5:
-        raise ValueError(f"fit_line: 'continuum_order' must be an integer 0..5, got "
-                         f"{continuum_order!r}")
-    sunit = axis_q.unit
-    funit = flux_q.unit
-    x_all = np.asarray(u.Quantity(axis_q).value, dtype=float)
-    y_all = np.asarray(flux_q.value, dtype=float)
+    x_all, _, sunit, _ = _spectrum_arrays(spectrum)
     label = label if label is not None else (
         f"{center:.6g}" if isinstance(center, u.Quantity) else str(center))
-    mu_guess0 = _as_spectral(center, sunit, "center", label)
-
-    # components
-    comp_labels = [label]
-    if components is None:
-        rel = np.array([1.0])
-    else:
-        if isinstance(components, dict):
-            comp_labels = [str(k) for k in components]
-            rest_vals = [_as_spectral(v, sunit, "components", label) for v in components.values()]
-        else:
-            cq = np.atleast_1d(components)
-            rest_vals = [_as_spectral(v, sunit, "components", label) for v in cq]
-            comp_labels = [label] + [f"{label} +{k}" for k in range(1, len(rest_vals))]
-        if len(rest_vals) < 1:
-            raise ValueError(f"fit_line: 'components' for line {label!r} is empty")
-        rel = np.asarray(rest_vals, dtype=float) / rest_vals[0]
-    n_comp = rel.size
-    ratios = {}
-    for key, r in (tie_ratio or {}).items():
-        try:
-            i, j = key
-        except (TypeError, ValueError):
-            raise ValueError(f"fit_line: 'tie_ratio' keys must be (i, j) pairs, got {key!r}") from None
-        ii = [comp_labels.index(k) if isinstance(k, str) and k in comp_labels else k for k in (i, j)]
-        for k, orig in zip(ii, (i, j)):
-            if not isinstance(k, (int, np.integer)) or not 0 <= k < n_comp:
-                raise ValueError(f"fit_line: 'tie_ratio' names component {orig!r}, which is not "
-                                 f"one of {comp_labels} or an index 0..{n_comp - 1}")
-        ratios[int(ii[0])] = (int(ii[1]), float(r))
-    for i, (j, _) in ratios.items():
-        if j in ratios or i == j:
-            raise ValueError(f"fit_line: 'tie_ratio' ties component {comp_labels[i]!r} to "
-                             f"{comp_labels[j]!r}, which is itself tied; tie to a free component")
-    mu_guess = mu_guess0 * rel
-
-    dx_med = float(np.median(np.abs(np.diff(x_all)))) if x_all.size > 1 else 0.0
-    fw_guess = (_as_width(fwhm, mu_guess0, sunit, "fwhm", label) if fwhm is not None
-                else 4.0 * dx_med)
-    if not fw_guess > 0:
+    mu_first = _as_spectral(center, sunit, "center", label)
+    if kind not in KINDS:
+        raise ValueError(f"fit_line: unknown kind {kind!r}; options: {', '.join(sorted(KINDS))}")
+    labels, rest = _components_of(center, components, label, sunit)
+    ratios = _ties(tie_ratio, labels)
+    mus = [mu_first] if rest is None else [mu_first * r / rest[0] for r in rest]
+    dx = float(np.median(np.abs(np.diff(x_all)))) if x_all.size > 1 else 0.0
+    fw = _as_width(fwhm, mu_first, sunit, "fwhm", label) if fwhm is not None else 4.0 * dx
+    if not fw > 0:
         raise ValueError(f"fit_line: FWHM guess for line {label!r} must be positive, got {fwhm!r}")
+    lo, hi = _default_window(window, mus, fw, dx, sunit, label)
+    mode = "shared" if (tie_center or len(mus) == 1) else "free"
+    comps = [Component(label=lab, position=m * sunit, centre=mode,
+                       rest=None if rest is None else rest[k] * sunit,
+                       width_group=0 if tie_width else k, fwhm=fw * sunit, kind=kind)
+             for k, (lab, m) in enumerate(zip(labels, mus))]
+    from zline.physics.fitgroup import fit_group
 
-    # window
-    span_lo, span_hi = float(mu_guess.min()), float(mu_guess.max())
-    if window is None:
-        half = max(8.0 * fw_guess, 20.0 * dx_med)
-        lo, hi = span_lo - half, span_hi + half
-    else:
-        if not isinstance(window, u.Quantity):
-            raise TypeError(f"fit_line: 'window' for line {label!r} must be a Quantity (a "
-                            f"[low, high] pair or one full width), got {window!r}")
-        if window.isscalar or window.size == 1:
-            half = 0.5 * _as_width(window.reshape(()), mu_guess0, sunit, "window", label)
-            lo, hi = span_lo - half, span_hi + half
-        elif window.size == 2:
-            a, b = _as_spectral(window, sunit, "window", label)
-            lo, hi = min(a, b), max(a, b)
-        else:
-            raise ValueError(f"fit_line: 'window' for line {label!r} must be one width or a "
-                             f"[low, high] pair, got {window.size} values")
-    xmin, xmax = float(np.nanmin(x_all)), float(np.nanmax(x_all))
-    win_txt = f"[{lo:.6g}, {hi:.6g}] {sunit}"
-    rng_txt = f"[{xmin:.6g}, {xmax:.6g}] {sunit}"
-    if hi < xmin or lo > xmax:
-        raise ValueError(f"fit_line: window {win_txt} for line {label!r} lies outside the "
-                         f"spectral range {rng_txt}")
-    if not (lo <= span_lo <= hi and lo <= span_hi <= hi):
-        raise ValueError(f"fit_line: line {label!r} (components at "
-                         f"{np.array2string(mu_guess, precision=6)} {sunit}) is not inside the "
-                         f"window {win_txt}")
-
-    err_all = _std_errors(spectrum)
-    good = (x_all >= lo) & (x_all <= hi) & np.isfinite(y_all) & np.isfinite(x_all)
-    if spectrum.mask is not None:
-        good &= ~np.asarray(spectrum.mask, dtype=bool)
-    if err_all is not None:
-        good &= np.isfinite(err_all) & (err_all > 0)
-    for a, b in _regions(exclude, sunit, label):
-        good &= ~((x_all >= a) & (x_all <= b))
-    order_x = np.argsort(x_all[good], kind="stable")  # decreasing axes (frequency) too
-    x = x_all[good][order_x]
-    y = y_all[good][order_x]
-    w_err = err_all[good][order_x] if err_all is not None else np.ones_like(y)
-
-    hw = max(0.5 * (hi - lo), 1e-300)
-    x0 = 0.5 * (hi + lo)
-    model = _Model(n_comp, int(continuum_order), ratios, rel, tie_center, tie_width, profile,
-                   x0, hw)
-    npar = len(model.names)
-    if x.size < npar + 3:
-        raise ValueError(f"fit_line: window {win_txt} for line {label!r} has {x.size} usable "
-                         f"pixels, need at least {npar + 3} for {npar} parameters (spectral "
-                         f"range {rng_txt}); widen the window or lower continuum_order")
-
-    # flux scaling for conditioning
-    fscale = float(np.nanmedian(np.abs(w_err))) if err_all is not None else float(
-        np.nanstd(y) or np.nanmax(np.abs(y)) or 1.0)
-    fscale = fscale if fscale > 0 else 1.0
-    ys, es = y / fscale, w_err / fscale
-
-    # sideband continuum as the starting point
-    core = np.zeros(x.size, dtype=bool)
-    for m in mu_guess:
-        core |= np.abs(x - m) < 1.5 * fw_guess
-    side = ~core if (~core).sum() >= continuum_order + 2 else np.ones_like(core)
-    t = (x - x0) / hw
-    cont0 = np.polynomial.polynomial.polyfit(t[side], ys[side], int(continuum_order),
-                                            w=1.0 / es[side])
-    sig0 = fw_guess / _GAUSS_FWHM
-    p0, lb, ub = list(cont0), [-np.inf] * len(cont0), [np.inf] * len(cont0)
-    dx_min = max(float(np.min(np.abs(np.diff(x)))) if x.size > 1 else dx_med, 1e-300)
-    mus = [mu_guess0] if model.tie_center else list(mu_guess)
-    for m in mus:
-        p0.append(m)
-        lb.append(lo)
-        ub.append(hi)
-    nw = 1 if model.tie_width else n_comp
-    sig_lo, sig_hi = 0.2 * dx_min, max(hi - lo, 2 * dx_min)
-    for _ in range(nw):
-        p0.append(min(max(sig0, 1.01 * sig_lo), 0.99 * sig_hi))
-        lb.append(sig_lo)
-        ub.append(sig_hi)
-    if profile == "voigt":
-        for _ in range(nw):
-            p0.append(min(max(0.5 * sig0, 1.01 * 1e-3 * dx_min), 0.99 * sig_hi))
-            lb.append(1e-3 * dx_min)
-            ub.append(sig_hi)
-    resid0 = ys - np.polynomial.polynomial.polyval(t, cont0)
-    for k in model.free_flux:
-        peak = float(np.interp(mu_guess[k], x, resid0))
-        p0.append(peak * sig0 * math.sqrt(2 * math.pi))
-        lb.append(-np.inf)
-        ub.append(np.inf)
-    p0, lb, ub = np.array(p0), np.array(lb), np.array(ub)
-
-    def resid(p):
-        return (ys - model(p, x)) / es
-
-    res = least_squares(resid, p0, bounds=(lb, ub), x_scale="jac", method="trf",
-                        xtol=1e-10, ftol=1e-10, gtol=1e-10, max_nfev=2000)
-    p = res.x
-    dof = x.size - npar
-    chi2 = float(np.sum(res.fun**2))
-    chi2_dof = chi2 / dof if dof > 0 else float("nan")
-    jac = res.jac
-    try:
-        cov = np.linalg.pinv(jac.T @ jac)
-    except np.linalg.LinAlgError:
-        cov = np.full((npar, npar), np.nan)
-    errors_from = "uncertainty"
-    if err_all is None:
-        cov = cov * chi2_dof
-        errors_from = "scatter"
-    steps = 1e-6 * np.maximum(np.abs(p), 1.0)
-    shape_params = [i for i, name in enumerate(model.names) if name[:2] in ("mu", "si", "ga")]
-    steps[shape_params] = 1e-4 * sig0
-
-    def derived(pp):
-        _, mu, _, _, fl = model.unpack(pp)
-        fw = model.fwhm(pp)
-        cmu = model.continuum(pp, mu)
-        return np.concatenate([mu, fl, fw, cmu, fl / cmu, _C_KMS * fw / mu])
-
-    vals, grad = _gradient(derived, p, steps)
-    var = np.einsum("ij,jk,ik->i", grad, cov, grad)
-    errs = np.sqrt(np.clip(var, 0, None))
-    n = n_comp
-    mu_v, fl_v, fw_v, c_v, ew_v, fk_v = (vals[i * n:(i + 1) * n] for i in range(6))
-    mu_e, fl_e, fw_e, c_e, ew_e, fk_e = (errs[i * n:(i + 1) * n] for i in range(6))
-    snr = np.where(fl_e > 0, fl_v / np.where(fl_e > 0, fl_e, 1.0), np.nan)
-
-    # upper limits: fixed profile (centre and FWHM at the guesses), linear refit
-    upper = [None] * n
-    if np.any(~(snr >= DETECTION_SNR)):
-        pf = p.copy()
-        if model.tie_center:
-            pf[model.idx["mu0"]] = mu_guess0
-        else:
-            for k in range(n):
-                pf[model.idx[f"mu{k}"]] = mu_guess[k]
-        for k in range(nw):
-            pf[model.idx[f"sig{k}"]] = sig0
-            if profile == "voigt":
-                pf[model.idx[f"gam{k}"]] = 1e-3 * dx_min
-        shp = model.shapes(pf, x)
-        cols = [t**k for k in range(model.order + 1)]
-        eff = np.array(shp)
-        for i, (j, r) in ratios.items():
-            eff[j] = eff[j] + r * shp[i]
-        cols += [eff[k] for k in model.free_flux]
-        a = np.array(cols).T / es[:, None]
-        covl = np.linalg.pinv(a.T @ a)
-        if err_all is None:
-            rl = ys / es - a @ (covl @ (a.T @ (ys / es)))
-            covl = covl * (float(rl @ rl) / max(dof, 1))
-        sd = np.sqrt(np.clip(np.diag(covl), 0, None))[model.order + 1:]
-        sd_by_comp = {}
-        for pos, k in enumerate(model.free_flux):
-            sd_by_comp[k] = sd[pos]
-        for i, (j, r) in ratios.items():
-            sd_by_comp[i] = abs(r) * sd_by_comp[j]
-        for k in range(n):
-            if not snr[k] >= DETECTION_SNR:
-                upper[k] = DETECTION_SNR * sd_by_comp[k] * fscale * funit * sunit
-
-    def evaluate(axis, with_lines, _p=p.copy()):
-        xa = _as_spectral(axis, sunit, "spectral_axis", label)
-        xa = np.asarray(xa, dtype=float)
-        out = model(_p, xa.ravel()) if with_lines else model.continuum(_p, xa.ravel())
-        return (out.reshape(xa.shape) * fscale) * funit
-
-    win_q = u.Quantity([lo, hi], sunit)
-    results = []
-    for k in range(n):
-        results.append(LineFit(
-            center=mu_v[k] * sunit, center_err=mu_e[k] * sunit,
-            flux=fl_v[k] * fscale * funit * sunit, flux_err=fl_e[k] * fscale * funit * sunit,
-            fwhm=fw_v[k] * sunit, fwhm_err=fw_e[k] * sunit,
-            fwhm_kms=fk_v[k] * u.km / u.s, fwhm_kms_err=fk_e[k] * u.km / u.s,
-            ew=ew_v[k] * sunit, ew_err=ew_e[k] * sunit, snr=float(snr[k]),
-            continuum=c_v[k] * fscale * funit, continuum_err=c_e[k] * fscale * funit,
-            chi2_dof=chi2_dof, dof=int(dof), success=bool(res.success), message=str(res.message),
-            upper_limit=upper[k], label=comp_labels[k], profile=profile, errors_from=errors_from,
-            window=win_q, n_pixels=int(x.size), _model=evaluate))
-    primary = results[0]
-    primary.components = tuple(results) if n > 1 else (primary,)
+    fits = fit_group(spectrum, comps, u.Quantity([lo, hi], sunit),
+                     continuum_order=continuum_order, profile=profile, ratios=ratios,
+                     exclude=exclude, fwhm_min=fwhm_min, fwhm_max=fwhm_max, label=label)
+    primary = fits[0]
+    primary.components = tuple(fits)
     return primary

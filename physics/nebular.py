@@ -1,7 +1,8 @@
 """Nebular diagnostics: Balmer decrement, extinction curve and dereddening.
 
-* Intrinsic H I Case B ratios to Hbeta at n_e = 100 cm^-3 and T = 5000, 10 000, 20 000 K
-  (`CASE_B_TABLE`), interpolated linearly in log T; values outside the table are refused.
+* Intrinsic H I Case B ratios to Hbeta for n_e = 1e2 ... 1e6 cm^-3 and T = 5000 ... 20 000 K
+  (`CASE_B_TABLE`, Storey & Hummer 1995), interpolated bilinearly in (log T, log n_e); values
+  outside the table are refused.
 * The extinction curve A_lambda / A_V = a(x) + b(x) / R_V, x = 1 / lambda [um^-1], built from
   the published polynomials of Cardelli, Clayton & Mathis 1989 (ApJ 345, 245), with the optical
   coefficients of O'Donnell 1994 (ApJ 422, 158) as an option (`CURVES`).
@@ -19,13 +20,32 @@ __all__ = ["CASE_B_TABLE", "CURVES", "CASE_B_LINES", "case_b_ratio", "extinction
            "k_lambda", "balmer_decrement", "deredden", "BalmerDecrement",
            "HALPHA_AIR", "HBETA_AIR"]
 
-#: Case B ratios to Hbeta at n_e = 100 cm^-3 (Osterbrock & Ferland 2006, Table 4.4, as quoted).
+#: Case B ratios to Hbeta (Storey & Hummer 1995, MNRAS 272, 41: the H I recombination data as
+#: distributed with PyNeb, file h_i_rec_SH95; values read from it, rounded to 4 decimals).  At
+#: n_e = 100 cm^-3 they are Osterbrock & Ferland 2006, Table 4.4 (as quoted).  Rows: density,
+#: columns: temperature.
 CASE_B_TABLE = {
-    "density": 100.0 * u.cm**-3,
-    "temperature": np.array([5000.0, 10000.0, 20000.0]) * u.K,
-    "Halpha": np.array([3.041, 2.863, 2.747]),
-    "Hgamma": np.array([0.458, 0.468, 0.475]),
-    "Hdelta": np.array([0.251, 0.259, 0.264]),
+    "source": "Storey & Hummer 1995, MNRAS 272, 41 (Case B, H I), as distributed with PyNeb",
+    "density": np.array([1e2, 1e3, 1e4, 1e5, 1e6]) * u.cm**-3,
+    "temperature": np.array([5000.0, 7500.0, 10000.0, 12500.0, 15000.0, 20000.0]) * u.K,
+    "Halpha": np.array([
+        [3.0409, 2.9291, 2.8632, 2.8205, 2.7884, 2.7466],
+        [3.0258, 2.9198, 2.8569, 2.8158, 2.7838, 2.7434],
+        [3.0009, 2.9050, 2.8468, 2.8073, 2.7781, 2.7394],
+        [2.9666, 2.8812, 2.8299, 2.7933, 2.7679, 2.7322],
+        [2.9183, 2.8497, 2.8064, 2.7768, 2.7539, 2.7245]]),
+    "Hgamma": np.array([
+        [0.4584, 0.4645, 0.4683, 0.4711, 0.4729, 0.4755],
+        [0.4588, 0.4648, 0.4686, 0.4713, 0.4731, 0.4755],
+        [0.4600, 0.4655, 0.4691, 0.4717, 0.4733, 0.4756],
+        [0.4617, 0.4665, 0.4697, 0.4720, 0.4737, 0.4758],
+        [0.4648, 0.4688, 0.4715, 0.4734, 0.4747, 0.4764]]),
+    "Hdelta": np.array([
+        [0.2515, 0.2560, 0.2589, 0.2610, 0.2624, 0.2643],
+        [0.2519, 0.2563, 0.2592, 0.2612, 0.2626, 0.2643],
+        [0.2525, 0.2568, 0.2596, 0.2615, 0.2626, 0.2644],
+        [0.2540, 0.2577, 0.2601, 0.2618, 0.2630, 0.2646],
+        [0.2578, 0.2605, 0.2623, 0.2635, 0.2644, 0.2656]]),
 }
 #: Lines with tabulated ratios (to Hbeta).
 CASE_B_LINES = {"Halpha": "H I 3-2", "Hbeta": "H I 4-2 (the reference, ratio 1)",
@@ -69,8 +89,14 @@ def case_b_ratio(line="Halpha", temperature=10000 * u.K, density=100 * u.cm**-3,
         One of `CASE_B_LINES`.
     temperature : `~astropy.units.Quantity` ['temperature']
         Electron temperature, 5000 ... 20 000 K (the table's range; linear in log T between).
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> round(case_b_ratio("Halpha", 10000 * u.K, 1e4 * u.cm**-3), 4)
+    2.8468
     density : `~astropy.units.Quantity` ['number density']
-        Electron density; only the tabulated n_e = 100 cm^-3 is available.
+        Electron density, 1e2 ... 1e6 cm^-3 (linear in log n_e between the tabulated decades).
     case : str
         Only ``"B"``.
 
@@ -88,17 +114,22 @@ def case_b_ratio(line="Halpha", temperature=10000 * u.K, density=100 * u.cm**-3,
     _check_quantity(temperature, "temperature", "case_b_ratio", "temperature")
     _check_quantity(density, "density", "case_b_ratio", "number density")
     t_tab = CASE_B_TABLE["temperature"].to_value(u.K)
+    n_tab = CASE_B_TABLE["density"].to_value(u.cm**-3)
     t = float(temperature.to_value(u.K, equivalencies=u.temperature()))
     n = float(density.to_value(u.cm**-3))
-    if not math.isclose(n, CASE_B_TABLE["density"].value, rel_tol=1e-9):
-        raise ValueError(f"case_b_ratio: density {density} is not tabulated; the table holds "
-                         f"n_e = 100 cm^-3 only")
+    if not n_tab[0] * (1 - 1e-9) <= n <= n_tab[-1] * (1 + 1e-9):
+        raise ValueError(f"case_b_ratio: density {density} is outside the table "
+                         f"({n_tab[0]:.0e} ... {n_tab[-1]:.0e} cm^-3); no extrapolation")
     if not t_tab[0] <= t <= t_tab[-1]:
         raise ValueError(f"case_b_ratio: temperature {temperature} is outside the table "
                          f"({t_tab[0]:.0f} ... {t_tab[-1]:.0f} K); no extrapolation")
     if line == "Hbeta":
         return 1.0
-    return float(np.interp(math.log(t), np.log(t_tab), CASE_B_TABLE[line]))
+    lt, ln = np.log(t_tab), np.log(n_tab)
+    x = float(np.clip(math.log(t), lt[0], lt[-1]))
+    y = float(np.clip(math.log(n), ln[0], ln[-1]))
+    by_density = [np.interp(x, lt, row) for row in CASE_B_TABLE[line]]
+    return float(np.interp(y, ln, by_density))
 
 
 def _poly(coeffs, y):

@@ -13,7 +13,12 @@ File layout (``"format": "zline-session"``, ``"version": 1``)::
     }
 
 The file is plain JSON: no pickle, no code is ever evaluated.  Writing is atomic (a temporary file
-in the same folder, then a rename) and never replaces an existing file unless ``overwrite=True``.
+in the same folder, then a rename) and never replaces an existing file unless ``overwrite=True``
+*and* that file is a zline session itself (anything else is refused whatever ``overwrite`` says).
+
+A session of uploaded data records the upload in ``settings``: ``source_name`` (the upload's file
+name) and ``source_sha256`` (the SHA-256 of its bytes; `source_settings` makes both).
+`check_source` compares the file a restore re-opens with that digest and refuses another file.
 """
 
 from __future__ import annotations
@@ -29,8 +34,9 @@ import numpy as np
 from zline.physics.fitting import LineFit
 from zline.physics.identify import Identifications, Lock, RedshiftSolution
 
-__all__ = ["save_session", "load_session", "SessionFormatError", "SESSION_FORMAT",
-           "SESSION_VERSION", "SESSION_KEYS"]
+__all__ = ["save_session", "load_session", "SessionFormatError", "SessionSourceError",
+           "SESSION_FORMAT", "SESSION_VERSION", "SESSION_KEYS", "SOURCE_KEYS", "source_settings",
+           "check_source"]
 
 SESSION_FORMAT = "zline-session"
 SESSION_VERSION = 1
@@ -43,8 +49,16 @@ SESSION_KEYS = {
 }
 
 
+#: Settings keys that identify the data a session was saved on.
+SOURCE_KEYS = ("source_name", "source_sha256")
+
+
 class SessionFormatError(ValueError):
     """A session file that cannot be read: names the file, the key, what was expected and found."""
+
+
+class SessionSourceError(ValueError):
+    """The spectrum a session is re-opened on is not the one it was saved on."""
 
 
 # --------------------------------------------------------------------------------------------
@@ -132,11 +146,14 @@ def save_session(path, state: dict, overwrite: bool = False) -> Path:
     ------
     FileExistsError
         ``path`` exists and ``overwrite`` is False.
+    zline.physics._atomic.NotZlineFileError
+        ``path`` exists and is not a zline session (never replaced; a `FileExistsError` too).
     TypeError, ValueError
         ``state`` holds something that cannot be stored.
     """
     path = Path(path)
     doc = _encode_state(state)
+    _check_source_settings(doc["settings"], "save_session", "state['settings']")
     text = json.dumps(doc, indent=2, allow_nan=False) + "\n"
     if path.exists() and not overwrite:
         raise FileExistsError(f"save_session: {str(path)!r} exists; pass overwrite=True to "
@@ -144,7 +161,8 @@ def save_session(path, state: dict, overwrite: bool = False) -> Path:
     from zline.physics._atomic import atomic_path
 
     exists = f"save_session: {str(path)!r} exists; pass overwrite=True to replace it"
-    with atomic_path(path, overwrite=overwrite, exists_message=exists, fsync=True) as tmp:
+    with atomic_path(path, overwrite=overwrite, exists_message=exists, fsync=True,
+                     kind="session") as tmp:
         with open(tmp, "w", encoding="utf-8") as fh:
             fh.write(text)
     return path
@@ -265,6 +283,95 @@ def load_session(path) -> dict:
     spectrum = doc.get("spectrum")
     if spectrum is not None and not isinstance(spectrum, str):
         _fail(path, "spectrum", "null or a string", spectrum)
+    try:
+        _check_source_settings(settings, f"session file {str(path)!r}", "key 'settings")
+    except ValueError as exc:
+        raise SessionFormatError(str(exc)) from None
     return {"format": SESSION_FORMAT, "version": version, "locks": locks,
             "fits": _decode(fits, path, "fits"), "z": _decode(z, path, "z"),
             "settings": _decode(settings, path, "settings"), "spectrum": spectrum}
+
+
+# --------------------------------------------------------------------------------------------
+# the data a session belongs to
+
+
+def _check_source_settings(settings, who, where):
+    name, digest = settings.get("source_name"), settings.get("source_sha256")
+    if name is not None and not isinstance(name, str):
+        raise ValueError(f"{who}: {where}.source_name': expected the upload's file name (a "
+                         f"string), found {name!r}")
+    if digest is not None and not (isinstance(digest, str) and len(digest) == 64
+                                   and all(c in "0123456789abcdef" for c in digest)):
+        raise ValueError(f"{who}: {where}.source_sha256': expected 64 lower-case hex digits "
+                         f"(a SHA-256), found {str(digest)[:80]!r}")
+
+
+def source_settings(data, name=None):
+    """The settings entries that tie a session to its data: ``source_name``, ``source_sha256``.
+
+    Parameters
+    ----------
+    data : bytes, str or path-like
+        The uploaded bytes, or a file.
+    name : str, optional
+        The name to record (default: the file's base name; required for bytes).
+
+    Examples
+    --------
+    >>> s = source_settings(b"SIMPLE  =", name="galaxy.fits")
+    >>> s["source_name"], s["source_sha256"][:12]
+    ('galaxy.fits', '5dc2ad957f14')
+    """
+    from zline.physics._atomic import file_sha256
+
+    if isinstance(data, (bytes, bytearray, memoryview)):
+        if not name:
+            raise ValueError("source_settings: bytes need name=... (the upload's file name)")
+        return {"source_name": str(name), "source_sha256": file_sha256(bytes(data))}
+    return {"source_name": str(name) if name else os.path.basename(os.fspath(data)),
+            "source_sha256": file_sha256(data)}
+
+
+def check_source(doc, data, session=None):
+    """Refuse to re-open a session on data other than the data it was saved on.
+
+    Parameters
+    ----------
+    doc : dict
+        A session read by `load_session` (or its ``settings`` dict).
+    data : bytes, str or path-like
+        What the restore is about to open: the file, or the bytes of an upload.
+    session : str or path-like, optional
+        The session file, named in the message.
+
+    Raises
+    ------
+    SessionSourceError
+        The session records a ``source_sha256`` and ``data`` has another SHA-256.
+    FileNotFoundError
+        ``data`` names no file.
+
+    A session without ``source_sha256`` (saved by an older zline) is not checked.
+    """
+    from zline.physics._atomic import file_sha256
+
+    settings = doc.get("settings", doc) if isinstance(doc, dict) else {}
+    expected = settings.get("source_sha256") if isinstance(settings, dict) else None
+    if not expected:
+        return
+    if isinstance(data, (bytes, bytearray, memoryview)):
+        actual, what = file_sha256(bytes(data)), "the data given"
+    else:
+        path = os.fspath(data)
+        if not os.path.isfile(path):
+            raise FileNotFoundError(f"restore: the spectrum file {path!r} of the session does not "
+                                    f"exist; pass the data it was saved on")
+        actual, what = file_sha256(path), repr(path)
+    if actual != expected:
+        saved = settings.get("source_name") or "its data"
+        where = f"session {os.fspath(session)!r}" if session is not None else "the session"
+        raise SessionSourceError(
+            f"{where} was saved on {saved!r} (SHA-256 {expected[:12]}...), but {what} has SHA-256 "
+            f"{actual[:12]}...: a different file; its locks would land on the wrong data. Open the "
+            f"file the session was saved on")

@@ -2,10 +2,13 @@
 
 `line_table_for_paper` turns locked identifications or line fits into a `~astropy.table.QTable`
 whose meta records the redshift solution, the medium and the source file (with its SHA-256).
-`write_table` writes it atomically (temporary file in the target directory, then
-``os.replace``) as ECSV, FITS, CSV, LaTeX or AASTeX.  The LaTeX writers round every value to the
-precision set by its uncertainty (`format_value_error`) and escape LaTeX special characters
-(`latex_escape`), which astropy does not do.
+`write_table` writes it atomically as ECSV, FITS, CSV, LaTeX or AASTeX, and replaces an existing
+file only when asked *and* the file is a zline table of the same kind (`zline.physics._atomic`).
+The LaTeX and AASTeX writers (`latex_table_text`) round every value to the precision set by its
+uncertainty (`format_value_error`), escape all text (`latex_escape`), typeset line labels
+(`latex_label`: ``H$\\alpha$``, ``[O\\,\\textsc{iii}]``), put units in the column headings and
+give z with its error, the velocity convention, the medium, the line set and the level model in
+the table notes.
 
 Rounding rule (`format_value_error`): the error keeps 2 significant digits when its leading
 digit is 1 or 2, else 1; the value is rounded to the same decimal place.  Examples:
@@ -14,21 +17,21 @@ digit is 1 or 2, else 1; the value is rounded to the same decimal place.  Exampl
 """
 
 import datetime
-import hashlib
 import math
 import os
-import re
 
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable, Table
 
+from zline.physics._atomic import LATEX_MARKER, TABLE_MARKER, file_sha256
 from zline.physics.constants import CODATA_RELEASE
 from zline.physics.fitting import LineFit
 from zline.physics.identify import Lock
+from zline.physics.latex import GREEK, latex_escape, latex_label, render_table
 
 __all__ = ["TABLE_FORMATS", "line_table_for_paper", "write_table", "read_table", "format_value_error",
-           "latex_escape", "file_sha256"]
+           "latex_escape", "latex_label", "latex_table_text", "file_sha256"]
 
 #: Format name -> what is written.
 TABLE_FORMATS = {
@@ -41,15 +44,6 @@ TABLE_FORMATS = {
 _ASTROPY_FORMAT = {"ecsv": "ascii.ecsv", "fits": "fits", "csv": "ascii.csv",
                    "latex": "ascii.latex", "aastex": "ascii.aastex"}
 _KMS = u.km / u.s
-
-
-def file_sha256(path):
-    """SHA-256 hex digest of a file (read in 1 MiB blocks)."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
 
 
 def _zline_version():
@@ -120,7 +114,9 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
     settings : dict, optional
         Extra facts: ``frame`` (e.g. "LSRK"), ``medium``, ``air_formula``, ``convention``,
         ``ebv`` (E(B-V), adds a dereddened flux column, see `zline.physics.nebular.deredden`),
-        ``r_v``, ``caption``.
+        ``r_v``, ``caption``, ``line_set`` (name of the set the lines came from) and
+        ``level_model`` (the `zline.physics.levels` model of the hydrogen-like positions); all
+        land in the meta and the LaTeX table notes.
 
     Returns
     -------
@@ -132,7 +128,8 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
         detected; a LineFit by its S/N.
     """
     settings = dict(settings or {})
-    known = {"frame", "medium", "air_formula", "convention", "ebv", "ebv_err", "r_v", "caption"}
+    known = {"frame", "medium", "air_formula", "convention", "ebv", "ebv_err", "r_v", "caption",
+             "line_set", "level_model"}
     unknown = set(settings) - known
     if unknown:
         raise ValueError(f"line_table_for_paper: unknown settings {sorted(unknown)}; options: "
@@ -246,6 +243,9 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
     meta["date"] = datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")
     if settings.get("caption"):
         meta["caption"] = str(settings["caption"])
+    for key in ("line_set", "level_model"):
+        if settings.get(key):
+            meta[key] = str(settings[key])
 
     ebv = settings.get("ebv")
     if ebv is not None:
@@ -319,105 +319,158 @@ def format_value_error(value, error):
     return _fmt(value, dec), _fmt(error, dec)
 
 
-_SPECIAL = re.compile(r"(?<!\\)([&%_#$])")
-_MATH = re.compile(r"(?<!\\)\$([^$]*)(?<!\\)\$")
-
-
-def latex_escape(text):
-    """Escape ``& % _ # $`` for LaTeX, keeping intended math.
-
-    A ``$...$`` pair whose content holds a backslash, ``^`` or ``_`` (e.g. ``H$\\alpha$``) is
-    kept verbatim; every other special character gets a backslash.  Characters already
-    escaped are left alone.
-    """
-    text = str(text)
-    out, pos = [], 0
-    for m in _MATH.finditer(text):
-        if not re.search(r"[\\^_]", m.group(1)):
-            continue
-        out.append(_SPECIAL.sub(r"\\\1", text[pos:m.start()]))
-        out.append(m.group(0))
-        pos = m.end()
-    out.append(_SPECIAL.sub(r"\\\1", text[pos:]))
-    return "".join(out)
-
-
 def _latex_unit(unit):
     if unit is None or unit == u.dimensionless_unscaled:
         return ""
     return unit.to_string("latex_inline")
 
 
-def _latex_table(table, units_in_names=False):
-    """A Table of strings: value +- error rounded, text escaped, units per column.
+_SYMBOL = {"length": r"\lambda", "frequency": r"\nu", "energy": "E", "wavenumber": r"\sigma"}
+_HEADINGS = {"label": "Line", "species": "Ion", "flux": "Flux", "ew": "EW", "fwhm_kms": "FWHM",
+             "snr": "S/N", "residual_kms": r"$\Delta v$", "flux_dered": "Dereddened flux"}
 
-    With ``units_in_names`` the unit goes into the column name (``rest (A)``) instead of a
-    separate units row (the AASTeX reader of astropy cannot read a units row back).
-    """
-    out = Table()
-    units = {}
 
-    def add(name, text_values, unit=None):
-        key = latex_escape(name)
-        ustr = _latex_unit(unit) if unit is not None else ""
-        if units_in_names and ustr:
-            key = f"{key} ({ustr})"
-        out[key] = text_values
-        if unit is not None and not units_in_names:
-            units[key] = ustr
+def _heading(name, unit):
+    if name in ("rest", "observed"):
+        symbol = _SYMBOL.get(str(unit.physical_type) if unit is not None else "", "x")
+        return f"${symbol}_{{\\mathrm{{{'rest' if name == 'rest' else 'obs'}}}}}$"
+    return _HEADINGS[name]
 
-    add("label", [latex_escape(v) for v in table["label"]])
-    if any(str(s) for s in table["species"]):
-        add("species", [latex_escape(v) for v in table["species"]])
-    pairs = [("rest", None), ("observed", "observed_err"), ("flux", "flux_err"),
-             ("ew", "ew_err"), ("fwhm_kms", "fwhm_kms_err")]
+
+def _cells_value_error(values, errors):
+    cells = []
+    for v, e in zip(values, errors):
+        sv, se = format_value_error(v, e) if np.isfinite(v) else ("", "")
+        cells.append(f"${sv} \\pm {se}$" if se else sv)
+    return cells
+
+
+def _latex_columns(table):
+    """[(heading, unit LaTeX, cells)] of a line table: values rounded by their errors."""
+    cols = [(_heading("label", None), "", [latex_label(v) for v in table["label"]])]
+    if "species" in table.colnames and any(str(s) for s in table["species"]):
+        cols.append((_heading("species", None), "", [latex_label(v) for v in table["species"]]))
     limits = np.asarray(table["upper_limit"], dtype=bool) if "upper_limit" in table.colnames \
         else np.zeros(len(table), bool)
-    for name, err_name in pairs:
+    for name, err_name in [("rest", None), ("observed", "observed_err"), ("flux", "flux_err"),
+                           ("ew", "ew_err"), ("fwhm_kms", "fwhm_kms_err")]:
+        if name not in table.colnames:
+            continue
         col = u.Quantity(table[name])
         if not np.any(np.isfinite(col.value)) and not (name == "flux" and limits.any()):
             continue
-        errs = (u.Quantity(table[err_name]).to_value(col.unit) if err_name
-                else np.full(len(table), np.nan))
-        cells = []
-        for i, (v, e) in enumerate(zip(col.value, errs)):
-            if name == "flux" and limits[i] and "flux_limit" in table.colnames:
-                lim = u.Quantity(table["flux_limit"][i]).to_value(col.unit)
-                cells.append(f"$<{float(lim):.2g}$" if np.isfinite(lim) else "")
-                continue
-            if name == "rest":
-                cells.append(f"{v:.3f}" if np.isfinite(v) else "")
-                continue
-            sv, se = format_value_error(v, e)
-            cells.append(f"${sv} \\pm {se}$" if se else sv)
-        add(name, cells, col.unit)
+        if name == "rest":
+            cells = [f"{v:.3f}" if np.isfinite(v) else "" for v in col.value]
+        else:
+            errs = (u.Quantity(table[err_name]).to_value(col.unit) if err_name in table.colnames
+                    else np.full(len(table), np.nan))
+            cells = _cells_value_error(col.value, errs)
+        if name == "flux" and "flux_limit" in table.colnames:
+            lims = u.Quantity(table["flux_limit"]).to_value(col.unit)
+            for i in np.flatnonzero(limits):
+                cells[i] = f"$<{float(lims[i]):.2g}$" if np.isfinite(lims[i]) else ""
+        cols.append((_heading(name, col.unit), _latex_unit(col.unit), cells))
     if "snr" in table.colnames:
-        add("snr", [f"{v:.1f}" if np.isfinite(v) else "" for v in np.asarray(table["snr"])])
+        cols.append((_heading("snr", None), "",
+                     [f"{v:.1f}" if np.isfinite(v) else "" for v in np.asarray(table["snr"])]))
     if "residual_kms" in table.colnames:
         col = u.Quantity(table["residual_kms"])
         if np.any(np.isfinite(col.value)):
-            add("residual_kms", [f"{v:.1f}" if np.isfinite(v) else "" for v in col.value],
-                col.unit)
+            cols.append((_heading("residual_kms", None), _latex_unit(col.unit),
+                         [f"{v:.1f}" if np.isfinite(v) else "" for v in col.value]))
     if "flux_dered" in table.colnames:
         col = u.Quantity(table["flux_dered"])
         errs = u.Quantity(table["flux_dered_err"]).to_value(col.unit)
-        cells = []
-        for v, e in zip(col.value, errs):
-            sv, se = format_value_error(v, e)
-            cells.append(f"${sv} \\pm {se}$" if se else sv)
-        add("flux_dered", cells, col.unit)
-    return out, units
+        cols.append((_heading("flux_dered", None), _latex_unit(col.unit),
+                     _cells_value_error(col.value, errs)))
+    return cols
 
 
-_GREEK = dict(zip("αβγδεζηθικλμνξοπρστυφχψω",
-                  ["alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota",
-                   "kappa", "lambda", "mu", "nu", "xi", "omicron", "pi", "rho", "sigma", "tau",
-                   "upsilon", "phi", "chi", "psi", "omega"]))
+def _finite(x):
+    try:
+        x = float(x)
+    except (TypeError, ValueError):
+        return None
+    return x if np.isfinite(x) else None
+
+
+def _value_text(symbol, value, error):
+    sv, se = format_value_error(value, error if error is not None else float("nan"))
+    return f"${symbol} = {sv} \\pm {se}$" if se else f"${symbol} = {sv}$"
+
+
+def _latex_notes(table):
+    """Sentences for the table notes: z +- sigma, convention, medium, line set, level model."""
+    meta = table.meta
+    esc = latex_escape
+    notes = []
+    z, conv = _finite(meta.get("z")), meta.get("convention")
+    if z is not None:
+        text = _value_text("z", z, _finite(meta.get("z_err")))
+        v = _finite(meta.get("velocity"))
+        if v is not None:
+            text += ", " + _value_text("v", v, _finite(meta.get("velocity_err"))) + " km\\,s$^{-1}$"
+        if conv:
+            text += f" ({esc(conv)} velocity convention)"
+        notes.append(text + ".")
+    elif conv:
+        notes.append(f"Velocities in the {esc(conv)} convention.")
+    medium = meta.get("medium")
+    if medium and medium != "unknown":
+        text = f"Rest positions in {esc(medium)}"
+        if medium == "air" and meta.get("air_formula"):
+            text += f" (converted from vacuum with the {esc(meta['air_formula'])} formula)"
+        notes.append(text + ".")
+    else:
+        notes.append("Medium (air or vacuum) of the rest positions not known.")
+    if meta.get("line_set"):
+        notes.append(f"Line set: {esc(meta['line_set'])}.")
+    if meta.get("level_model"):
+        notes.append(f"Hydrogen-like rest positions from the {esc(meta['level_model'])} level "
+                     f"model.")
+    if meta.get("frame") and meta.get("frame") != "unknown":
+        notes.append(f"Velocity frame: {esc(meta['frame'])}.")
+    if meta.get("constants"):
+        notes.append(f"Constants: {esc(meta['constants'])}.")
+    if "upper_limit" in table.colnames and np.any(np.asarray(table["upper_limit"], dtype=bool)):
+        notes.append("Upper limits are 3$\\sigma$.")
+    if _finite(meta.get("ebv")) is not None:
+        notes.append(f"Dereddened with {_value_text('E(B-V)', meta['ebv'], _finite(meta.get('ebv_err')))}"
+                     f" ({esc(str(meta.get('extinction_curve', '')).upper())}, "
+                     f"$R_V = {_finite(meta.get('r_v')) or 3.1:.3g}$).")
+    return notes
+
+
+def latex_table_text(table, style="latex"):
+    """A line table as LaTeX (``style="latex"``) or AASTeX (``"aastex"``) text.
+
+    Values are rounded by their errors, labels typeset (`latex_label`), headings carry units and
+    the notes give z with its error, the velocity convention, the medium, the line set and the
+    level model from ``table.meta``.  The text starts with the TeX comment ``% zline line table``.
+    """
+    cols = _latex_columns(table)
+    rows = [[c[2][i] for c in cols] for i in range(len(table))]
+    meta = table.meta
+    if meta.get("caption"):
+        caption = latex_escape(meta["caption"])
+    elif meta.get("source_file"):
+        caption = f"Lines measured in {latex_escape(os.path.basename(str(meta['source_file'])))}"
+    else:
+        caption = "Measured lines"
+    comments = [LATEX_MARKER[2:],
+                f"written by zline {meta.get('zline_version') or _zline_version()}"
+                f" on {meta.get('date', '')}"]
+    if meta.get("source_file"):
+        comments.append(f"source: {meta['source_file']} HDU {meta.get('source_hdu')} "
+                        f"SHA-256 {meta.get('source_sha256')}")
+    return render_table([c[0] for c in cols], [c[1] for c in cols], rows, caption,
+                        _latex_notes(table), style=style, comments=comments)
+
 
 
 def _ascii(text):
     """FITS strings are ASCII: Greek letters spelled out, anything else as '?'."""
-    text = "".join(_GREEK.get(ch, ch) for ch in str(text))
+    text = "".join(GREEK.get(ch, ch) for ch in str(text))
     return text.encode("ascii", "replace").decode("ascii")
 
 
@@ -433,43 +486,48 @@ def _flat_meta(meta):
     return out
 
 
-def write_table(table, path, format="ecsv", overwrite=False):
-    """Write a line table atomically.
+def write_table(table, path, format="ecsv", overwrite=False, kind=None):
+    """Write a table atomically; never over a file zline did not write.
 
     Parameters
     ----------
     table : `~astropy.table.Table` or `~astropy.table.QTable`
         Usually from `line_table_for_paper`.
     path : str or path-like
-        Target file.  A temporary file is written in the same directory and moved into place
-        with ``os.replace``, so a reader never sees a half-written file.
+        Target file.  A temporary file is written in the same directory and moved into place,
+        so a reader never sees a half-written file.
     format : str
         One of `TABLE_FORMATS`.
     overwrite : bool
-        Replace an existing file.
+        Replace an existing file -- only one zline wrote as the same kind of table.
+    kind : {"line-table", "catalog"}, optional
+        What the table is (default: "catalog" when ``table.meta`` holds ``zline_batch``, else
+        "line-table"); recorded in the file (meta ``zline_file``, a LaTeX comment) so a later
+        ``overwrite`` can tell.
 
     Raises
     ------
     FileExistsError
         ``path`` exists and ``overwrite`` is False.
+    zline.physics._atomic.NotZlineFileError
+        ``path`` exists and is not a zline table of this kind (never replaced).
     ValueError
         Unknown format.
     """
     if format not in TABLE_FORMATS:
         raise ValueError(f"write_table: unknown format {format!r}; options: "
                          + ", ".join(f"{k} ({v})" for k, v in sorted(TABLE_FORMATS.items())))
+    if kind is None:
+        kind = "catalog" if "zline_batch" in table.meta else "line-table"
+    if kind not in ("line-table", "catalog"):
+        raise ValueError(f"write_table: unknown kind {kind!r}; options: catalog, line-table")
     path = os.fspath(path)
-    if os.path.exists(path) and not overwrite:
-        raise FileExistsError(f"write_table: {path!r} exists; pass overwrite=True to replace it")
-    kwargs = {}
+    exists = f"write_table: {path!r} exists; pass overwrite=True to replace it"
+    if os.path.lexists(path) and not overwrite:
+        raise FileExistsError(exists)
+    text = None
     if format in ("latex", "aastex"):
-        out, units = _latex_table(table, units_in_names=(format == "aastex"))
-        caption = table.meta.get("caption")
-        latexdict = {"units": units}
-        if caption:
-            latexdict["caption"] = latex_escape(caption)
-        kwargs["latexdict"] = latexdict
-        to_write = out
+        text = latex_table_text(table, style=format)
     elif format == "fits":
         to_write = QTable(table, copy=True)
         for name in to_write.colnames:
@@ -479,19 +537,24 @@ def write_table(table, path, format="ecsv", overwrite=False):
         to_write.meta.update({k: _ascii(v) if isinstance(v, str) else v
                               for k, v in _flat_meta(table.meta).items()})
     else:
-        to_write = table
+        to_write = table.copy(copy_data=False)
+    if format in ("ecsv", "fits") and kind == "line-table":
+        to_write.meta[TABLE_MARKER] = kind
     import warnings
 
     from astropy.io.fits.verify import VerifyWarning
 
     from zline.physics._atomic import atomic_path
 
-    exists = f"write_table: {path!r} exists; pass overwrite=True to replace it"
-    with atomic_path(path, overwrite=overwrite, exists_message=exists) as tmp, \
+    with atomic_path(path, overwrite=overwrite, exists_message=exists, kind=kind) as tmp, \
             warnings.catch_warnings():
-        # long meta keys become HIERARCH cards; astropy warns about each one
-        warnings.filterwarnings("ignore", category=VerifyWarning)
-        to_write.write(tmp, format=_ASTROPY_FORMAT[format], overwrite=True, **kwargs)
+        if text is not None:
+            with open(tmp, "w", encoding="utf-8") as fh:
+                fh.write(text)
+        else:
+            # long meta keys become HIERARCH cards; astropy warns about each one
+            warnings.filterwarnings("ignore", category=VerifyWarning)
+            to_write.write(tmp, format=_ASTROPY_FORMAT[format], overwrite=True)
     return path
 
 

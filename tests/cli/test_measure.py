@@ -84,13 +84,45 @@ def test_overwrite_and_blend_options(demo, tmp_path, capsys):
     assert main(base) == 2
     assert "--overwrite" in capsys.readouterr().err
     assert target.read_text() == "my notes\n"  # refused: the user's file is untouched
-    assert main(base + ["--overwrite"]) == 0
+    assert main(base + ["--overwrite"]) == 2  # asked, but zline did not write it: refused
+    err = capsys.readouterr().err
+    assert "lines.json' exists and is a file zline did not write" in err
+    assert err.count("\n") == 1 and target.read_text() == "my notes\n"
+    target.unlink()
+    assert main(base) == 0
+    assert main(base + ["--overwrite"]) == 0  # zline's own result: replaced when asked
     joint = {d["label"]: d for d in json.loads(target.read_text())["lines"]}
     # [O II] 3726/3729 fitted together (the default blend distance) ...
     assert "[O II] 3729" in joint["[O II] 3726"]["blend"]
     assert main(base + ["--overwrite", "--blend", "0"]) == 0
     alone = {d["label"]: d for d in json.loads(target.read_text())["lines"]}
-    # ... and one by one with --blend 0
-    assert not alone["[O II] 3726"]["blend"]
+    # ... and each with its own centre with --blend 0 (still in one fit: their windows overlap)
+    def centre_ratio(lines):
+        return lines["[O II] 3729"]["observed"] / lines["[O II] 3726"]["observed"]
+
+    rest_ratio = joint["[O II] 3729"]["rest"] / joint["[O II] 3726"]["rest"]
+    assert centre_ratio(joint) == pytest.approx(rest_ratio, rel=1e-12)
+    assert abs(centre_ratio(alone) - rest_ratio) > 1e-9
+    assert "[O II] 3729" in alone["[O II] 3726"]["blend"]
     assert main(["measure", str(demo["galaxy"]), "--z", z, "--blend", "-5"]) == 2
     assert "--blend must be a velocity >= 0" in capsys.readouterr().err
+
+
+def test_window_option(demo, capsys):
+    # the galaxy demo's truth, tried 300 km/s off: the default window finds it, a 100 km/s one
+    # does not reach it
+    z = DEMO_TRUTH["galaxy"]["z"]
+    trial = str(z + 300 / 299792.458 * (1 + z))
+    assert main(["measure", str(demo["galaxy"]), "--z", trial, "--format", "json"]) == 0
+    wide = json.loads(capsys.readouterr().out)
+    assert abs(wide["z"] - z) < 3 * wide["z_err"] + 2e-5
+    assert wide["search"]["found"] and abs(wide["search"]["shift"] + 300) < 30
+    assert main(["measure", str(demo["galaxy"]), "--z", trial, "--format", "json",
+                 "--window", "100"]) == 0
+    narrow = json.loads(capsys.readouterr().out)
+    assert narrow["search"]["window"] == 100
+    assert narrow["n_detected"] < wide["n_detected"]
+    assert main(["measure", str(demo["galaxy"]), "--z", trial, "--window", "0"]) == 2
+    assert "--window must be a velocity > 0" in capsys.readouterr().err
+    assert main(["measure", str(demo["galaxy"]), "--z", trial]) == 0
+    assert "km/s, set shifted by -" in capsys.readouterr().out

@@ -33,6 +33,11 @@ def reference(survey, tmp_path_factory):
     return cat, table
 
 
+def _records(parts):
+    """Names of the per-spectrum records in a .parts folder (not its lock or correction log)."""
+    return sorted(n for n in os.listdir(parts) if n.endswith(".json") and n != "corrections.json")
+
+
 def _text(col):
     """String column with empty cells as "" (ECSV reads empty strings back as masked)."""
     return col.filled("") if hasattr(col, "filled") else col
@@ -82,7 +87,7 @@ def test_resume_after_interrupt(survey, reference, tmp_path, monkeypatch):
         measure_survey(d, cat, workers=1, progress=stop)
     assert not cat.exists()
     parts = parts_directory(cat)
-    first = {n: os.stat(os.path.join(parts, n)).st_mtime_ns for n in os.listdir(parts)}
+    first = {n: os.stat(os.path.join(parts, n)).st_mtime_ns for n in _records(parts)}
     assert len(first) == n_stop
     done_files = {json.load(open(os.path.join(parts, n)))["file"] for n in first}
 
@@ -96,21 +101,23 @@ def test_resume_after_interrupt(survey, reference, tmp_path, monkeypatch):
     monkeypatch.setattr(batch, "measure_one", counting)
     seen = []
     table = measure_survey(d, cat, workers=1, progress=lambda k, n: seen.append((k, n)))
-    n_bad_done = sum("bad_" in f for f in done_files)  # bad files sort first, are retried
-    assert n_bad_done == 2
-    assert seen[0] == (n_stop - n_bad_done, N_GOOD + 2) and seen[-1] == (N_GOOD + 2, N_GOOD + 2)
-    assert not set(calls) & {f for f in done_files if "bad_" not in f}
-    assert len(calls) == N_GOOD + 2 - n_stop + n_bad_done
+    assert sum("bad_" in f for f in done_files) == 2  # bad files sort first
+    # everything done before is reused, the unchanged bad files too
+    assert seen[0] == (n_stop, N_GOOD + 2) and seen[-1] == (N_GOOD + 2, N_GOOD + 2)
+    assert not set(calls) & done_files
+    assert len(calls) == N_GOOD + 2 - n_stop
     for name, mtime in first.items():
-        rec = json.load(open(os.path.join(parts, name)))
-        if "bad_file" not in rec["flags"]:
-            assert os.stat(os.path.join(parts, name)).st_mtime_ns == mtime
+        assert os.stat(os.path.join(parts, name)).st_mtime_ns == mtime
+    assert table.meta["zline_batch"]["run"] == {"new": N_GOOD + 2 - n_stop, "reused": n_stop,
+                                                "failed": 2, "failed_reused": 2}
     _same(table, reference[1])
     _same(Table.read(cat, format="ascii.ecsv"), reference[1])
 
-    # a third run retries only the two bad files
+    # a third run measures nothing; asked to retry failures, only the two bad files
     calls.clear()
-    measure_survey(d, cat, workers=1)
+    again = measure_survey(d, cat, workers=1)
+    assert calls == [] and again.meta["zline_batch"]["run"]["reused"] == N_GOOD + 2
+    measure_survey(d, cat, workers=1, retry_failed=True)
     assert sorted(os.path.basename(c) for c in calls) == ["bad_empty.fits", "bad_text.fits"]
 
 
@@ -136,7 +143,7 @@ def test_dask_cluster_matches(survey, reference, tmp_path):
     distributed = pytest.importorskip("distributed")
     d, _ = survey
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                  dashboard_address=None) as cluster, \
+                                  dashboard_address=":0") as cluster, \
             distributed.Client(cluster) as client:
         table = measure_survey(d, tmp_path / "dask.ecsv", client=client)
     _same(table, reference[1])
@@ -185,7 +192,7 @@ def test_corrupt_record_is_remeasured(tmp_path):
     cat = tmp_path / "c.ecsv"
     first = measure_survey(tmp_path / "s", cat, workers=1)
     parts = parts_directory(cat)
-    victim = sorted(os.listdir(parts))[0]
+    victim = _records(parts)[0]
     open(os.path.join(parts, victim), "w").close()  # e.g. left empty by a power cut
     again = measure_survey(tmp_path / "s", cat, workers=1)
     _same(again, first)
@@ -202,6 +209,6 @@ def test_interrupt_with_process_pool(survey, reference, tmp_path):
 
     with pytest.raises(KeyboardInterrupt):
         measure_survey(d, cat, workers=2, progress=stop)
-    n_first = len(os.listdir(parts_directory(cat)))
+    n_first = len(_records(parts_directory(cat)))
     assert 4 <= n_first < N_GOOD + 2
     _same(measure_survey(d, cat, workers=2), reference[1])

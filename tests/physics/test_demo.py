@@ -137,8 +137,16 @@ def test_existing_files_are_protected(tmp_path):
     assert target.read_bytes() == b"mine"
     write_demo_spectra(tmp_path, skip_existing=True)
     assert target.read_bytes() == b"mine"
-    write_demo_spectra(tmp_path, overwrite=True)
+    # asked to overwrite, but radio.fits is not a zline demo spectrum: nothing is written
+    galaxy = tmp_path / "galaxy.fits"
+    galaxy.write_bytes(fits_bytes("nebula"))  # a zline demo spectrum, but not the galaxy's
+    with pytest.raises(FileExistsError, match="radio.fits' exists and is a file zline did not"):
+        write_demo_spectra(tmp_path, overwrite=True)
+    assert target.read_bytes() == b"mine" and galaxy.read_bytes() == fits_bytes("nebula")
+    target.unlink()
+    write_demo_spectra(tmp_path, overwrite=True)  # only zline demo spectra there: replaced
     assert target.read_bytes() == fits_bytes("radio")
+    assert galaxy.read_bytes() == fits_bytes("galaxy")
     with pytest.raises(ValueError, match="exclude each other"):
         write_demo_spectra(tmp_path, overwrite=True, skip_existing=True)
     with pytest.raises(ValueError, match="'name'"):
@@ -165,7 +173,13 @@ def test_cli(tmp_path, capsys):
     assert (out / "xray.fits").read_bytes() == b"mine"
     assert main(["demo-data", str(out)]) == 0
     assert "kept" in capsys.readouterr().out
+    assert main(["demo-data", str(out), "--overwrite", "--quiet"]) == 2  # not ours: refused
+    assert "xray.fits' exists and is a file zline did not write" in capsys.readouterr().err
+    assert (out / "xray.fits").read_bytes() == b"mine"
+    (out / "xray.fits").unlink()
+    (out / "radio.fits").write_bytes(fits_bytes("xray"))  # a demo spectrum under another name
     assert main(["demo-data", str(out), "--overwrite", "--quiet"]) == 0
     assert (out / "xray.fits").read_bytes() == fits_bytes("xray")
+    assert (out / "radio.fits").read_bytes() == fits_bytes("radio")
     assert main(["demo-data", str(out / "galaxy.fits")]) == 2
     assert "not a directory" in capsys.readouterr().err

@@ -8,7 +8,7 @@ import pytest
 from astropy.tests.helper import assert_quantity_allclose
 
 from zline.physics.fitting import fit_line
-from zline.physics.nebular import (CASE_B_LINES, HALPHA_AIR, HBETA_AIR, balmer_decrement,
+from zline.physics.nebular import (CASE_B_LINES, CASE_B_TABLE, HALPHA_AIR, HBETA_AIR, balmer_decrement,
                                    case_b_ratio, deredden, extinction_curve, k_lambda)
 from zline.physics.tables import line_table_for_paper
 
@@ -20,7 +20,8 @@ _OF06 = [(5000, "Halpha", 3.041), (10000, "Halpha", 2.863), (20000, "Halpha", 2.
 
 @pytest.mark.parametrize("temp, line, value", _OF06)
 def test_case_b_table_values(temp, line, value):
-    assert case_b_ratio(line, temp * u.K) == pytest.approx(value, abs=5e-4)
+    # the table's 4-decimal values against the book's 3 decimals: both rounded
+    assert case_b_ratio(line, temp * u.K) == pytest.approx(value, abs=5.5e-4)
 
 
 def test_case_b_interpolation_and_refusals():
@@ -29,14 +30,65 @@ def test_case_b_interpolation_and_refusals():
     assert case_b_ratio("Hbeta") == 1.0 and "Hdelta" in CASE_B_LINES
     with pytest.raises(ValueError, match="outside the table.*5000.*20000"):
         case_b_ratio("Halpha", 30000 * u.K)
-    with pytest.raises(ValueError, match="density.*100 cm"):
-        case_b_ratio("Halpha", 10000 * u.K, 1e4 * u.cm**-3)
+    with pytest.raises(ValueError, match=r"density 10000000.0 1 / cm3 is outside the table"):
+        case_b_ratio("Halpha", 10000 * u.K, 1e7 * u.cm**-3)
+    with pytest.raises(ValueError, match="density 10.0 1 / cm3 is outside"):
+        case_b_ratio("Halpha", 10000 * u.K, 10 * u.cm**-3)
     with pytest.raises(ValueError, match="case 'A' is not tabulated"):
         case_b_ratio("Halpha", case="A")
     with pytest.raises(ValueError, match="line 'Hepsilon' not tabulated"):
         case_b_ratio("Hepsilon")
     with pytest.raises(TypeError, match="'temperature' must be a Quantity"):
         case_b_ratio("Halpha", 10000)
+
+
+def _pyneb_ratio(line, temp, dens):
+    import pyneb
+
+    upper = {"Halpha": 3, "Hgamma": 5, "Hdelta": 6}[line]
+    h1 = pyneb.RecAtom("H", 1)  # Storey & Hummer 1995 Case B data (h_i_rec_SH95)
+    return float(h1.getEmissivity(temp, dens, lev_i=upper, lev_j=2)
+                 / h1.getEmissivity(temp, dens, lev_i=4, lev_j=2))
+
+
+@pytest.mark.parametrize("line", ["Halpha", "Hgamma", "Hdelta"])
+@pytest.mark.parametrize("temp, dens", [(5000, 1e2), (10000, 1e4), (20000, 1e6), (7500, 1e5),
+                                        (12500, 1e3), (15000, 1e6)])
+def test_case_b_grid_against_pyneb(line, temp, dens):
+    # reference library: pyneb's H I recombination data (Storey & Hummer 1995, MNRAS 272, 41)
+    assert case_b_ratio(line, temp * u.K, dens * u.cm**-3) == pytest.approx(
+        _pyneb_ratio(line, temp, dens), abs=6e-5)
+
+
+@pytest.mark.parametrize("line", ["Halpha", "Hgamma", "Hdelta"])
+@pytest.mark.parametrize("temp, dens", [(8000, 3e3), (14000, 3e5), (6000, 5e2), (18000, 2e4),
+                                        (5500, 7e5)])
+def test_case_b_between_the_grid_against_pyneb(line, temp, dens):
+    # bilinear in (log T, log n_e) between the tabulated points: within 0.3 % of pyneb's own
+    # interpolation of the same data
+    assert case_b_ratio(line, temp * u.K, dens * u.cm**-3) == pytest.approx(
+        _pyneb_ratio(line, temp, dens), rel=3e-3)
+
+
+def test_case_b_density_dependence():
+    # Halpha / Hbeta falls with density at fixed T (collisional effects, Storey & Hummer 1995)
+    ratios = [case_b_ratio("Halpha", 10000 * u.K, n * u.cm**-3) for n in (1e2, 1e3, 1e4, 1e5, 1e6)]
+    assert np.all(np.diff(ratios) < 0)
+    assert "Storey & Hummer 1995" in CASE_B_TABLE["source"]
+
+
+@pytest.mark.parametrize("curve, model", [("ccm89", "CCM89"), ("odonnell94", "O94")])
+@pytest.mark.parametrize("r_v", [2.5, 3.1, 5.0])
+def test_extinction_curves_against_dust_extinction(curve, model, r_v):
+    # reference library: dust_extinction's CCM89 (Cardelli, Clayton & Mathis 1989) and O94
+    # (O'Donnell 1994) over their common range 0.3 ... 10 um^-1
+    from dust_extinction import parameter_averages
+
+    ref = getattr(parameter_averages, model)(Rv=r_v)
+    x = np.linspace(0.31, 9.99, 400) / u.um
+    wave = (1 / x).to(u.AA)
+    np.testing.assert_allclose(extinction_curve(wave, r_v=r_v, curve=curve), ref(x),
+                               rtol=1e-6, atol=1e-9)
 
 
 # A_lambda / A_V for R_V = 3.1 at the effective wavelengths of Cardelli, Clayton & Mathis 1989
@@ -86,7 +138,8 @@ def test_balmer_decrement_hand_calculation():
     # error: 2.5 / (dk ln 10) * 0.05
     assert res.ebv_err.value == pytest.approx(2.5 / (1.08 * math.log(10)) * 0.05, rel=0.01)
     # intrinsic ratio gives zero, a lower one a negative value (not clipped)
-    assert balmer_decrement(2.863 * u.one, 1 * u.one).ebv.value == pytest.approx(0, abs=1e-12)
+    intrinsic = case_b_ratio("Halpha")  # 2.8632 at 10 000 K, 100 cm^-3 (Storey & Hummer 1995)
+    assert balmer_decrement(intrinsic * u.one, 1 * u.one).ebv.value == pytest.approx(0, abs=1e-12)
     assert balmer_decrement(2.5 * u.one, 1 * u.one).ebv.value < 0
 
 
@@ -108,7 +161,8 @@ def test_deredden_round_trip():
     # the dereddened Balmer decrement equals the intrinsic ratio
     res = balmer_decrement(3.5 * u.one, 1.0 * u.one)
     fixed = deredden([1.0, 3.5] * u.one, wave, res.ebv)
-    assert (fixed[1] / fixed[0]).to_value(u.one) == pytest.approx(2.863, rel=1e-10)
+    assert (fixed[1] / fixed[0]).to_value(u.one) == pytest.approx(case_b_ratio("Halpha"),
+                                                                  rel=1e-10)
 
 
 def test_dereddened_column_in_paper_table():

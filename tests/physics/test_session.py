@@ -1,5 +1,6 @@
 """Tests of zline.physics.session: versioned JSON sessions, validation, atomic writes."""
 
+import hashlib
 import json
 import math
 
@@ -11,7 +12,9 @@ from specutils import Spectrum
 
 from zline.physics.fitting import fit_line
 from zline.physics.identify import Identifications, Lock, solve_redshift
-from zline.physics.session import SessionFormatError, load_session, save_session
+from zline.physics._atomic import NotZlineFileError
+from zline.physics.session import (SessionFormatError, SessionSourceError, check_source,
+                                   load_session, save_session, source_settings)
 
 
 def _state():
@@ -76,6 +79,56 @@ def test_never_overwrites_without_flag(tmp_path):
     assert load_session(path)["z"] == 0.2
     # no temporary files left behind
     assert sorted(p.name for p in tmp_path.iterdir()) == ["s.json"]
+
+
+@pytest.mark.parametrize("name, content", [
+    ("spec.fits", b"SIMPLE  =                    T" + b" " * 2850),
+    ("lines.ecsv", b"# %ECSV 1.0\n# ---\n# datatype:\n# - {name: a, datatype: int64}\na\n1\n"),
+    ("notes.json", b'{"format": "somebody-else", "version": 1}'),
+    ("notebook.ipynb", b'{"cells": [], "nbformat": 4}'),
+])
+def test_overwrite_refuses_what_zline_did_not_write(tmp_path, name, content):
+    path = tmp_path / name
+    path.write_bytes(content)
+    with pytest.raises(NotZlineFileError, match=f"{name}' exists and is .*not a zline session"):
+        save_session(path, {"z": 0.1}, overwrite=True)
+    assert path.read_bytes() == content
+    assert sorted(p.name for p in tmp_path.iterdir()) == [name]
+
+
+def test_upload_source_recorded_and_checked(tmp_path):
+    upload = b"SIMPLE  = T  invented upload bytes"
+    settings = source_settings(upload, name="galaxy.fits")
+    path = save_session(tmp_path / "s.json", {"z": 0.1, "settings": settings,
+                                              "spectrum": None})
+    doc = load_session(path)
+    assert doc["settings"]["source_name"] == "galaxy.fits"
+    assert doc["settings"]["source_sha256"] == settings["source_sha256"]
+    check_source(doc, upload)  # the same bytes: fine
+    (tmp_path / "galaxy.fits").write_bytes(upload)
+    check_source(doc, tmp_path / "galaxy.fits")  # the same bytes in a file: fine
+    other = tmp_path / "sub" / "galaxy.fits"  # same name, other content
+    other.parent.mkdir()
+    other.write_bytes(upload + b" changed")
+    with pytest.raises(SessionSourceError, match=r"saved on 'galaxy.fits' \(SHA-256 [0-9a-f]{12}"
+                       r"\.\.\.\), but '.*sub/galaxy.fits' has SHA-256 .*a different file"):
+        check_source(doc, other, session=path)
+    with pytest.raises(FileNotFoundError, match="nothere.fits"):
+        check_source(doc, tmp_path / "nothere.fits")
+    check_source({"settings": {}}, other)  # an older session without a digest: not checked
+    assert source_settings(other) == {
+        "source_name": "galaxy.fits",
+        "source_sha256": hashlib.sha256(upload + b" changed").hexdigest()}
+
+
+def test_bad_source_digest_is_refused(tmp_path):
+    with pytest.raises(ValueError, match="source_sha256': expected 64 lower-case hex digits"):
+        save_session(tmp_path / "s.json", {"settings": {"source_sha256": "abc"}})
+    path = tmp_path / "t.json"
+    path.write_text(json.dumps({"format": "zline-session", "version": 1,
+                                "settings": {"source_name": 3}}))
+    with pytest.raises(SessionFormatError, match="source_name': expected the upload's file name"):
+        load_session(path)
 
 
 def test_failed_encoding_leaves_old_file(tmp_path):

@@ -13,7 +13,8 @@ from zline.physics.demo import DEMO_TRUTH, write_demo_spectra
 from zline.physics.fitting import fit_line
 from zline.physics.identify import Lock, solve_redshift
 from zline.physics.spectra import read_spectrum
-from zline.physics.tables import (TABLE_FORMATS, format_value_error, latex_escape,
+from zline.physics._atomic import NotZlineFileError
+from zline.physics.tables import (TABLE_FORMATS, format_value_error,
                                   line_table_for_paper, read_table, write_table)
 
 # Invented labels to exercise escaping; rest wavelengths of Halpha, Hbeta, [O III] (vacuum,
@@ -90,9 +91,13 @@ def test_no_clobber_and_atomic(table, tmp_path):
     target.write_text("precious")
     with pytest.raises(FileExistsError, match="lines.ecsv"):
         write_table(table, target)
+    with pytest.raises(NotZlineFileError, match="lines.ecsv' exists and is a file zline did not"):
+        write_table(table, target, overwrite=True)  # asked, but zline did not write it
     assert target.read_text() == "precious"
-    write_table(table, target, overwrite=True)
-    assert read_table(target)["label"][0] == "H_alpha & co"
+    target.unlink()
+    write_table(table[:1], target)
+    write_table(table, target, overwrite=True)  # a zline line table: replaced when asked
+    assert list(read_table(target)["label"]) == list(table["label"])
     assert [p.name for p in tmp_path.iterdir()] == ["lines.ecsv"]  # no temporary left behind
 
 
@@ -117,33 +122,34 @@ def test_rounding_rule(value, error, expected):
     assert format_value_error(value, error) == expected
 
 
-@pytest.mark.parametrize("text, expected", [
-    ("H_alpha & co", r"H\_alpha \& co"),
-    ("50% #1 $5", r"50\% \#1 \$5"),
-    ("H$\\beta$ 4861", "H$\\beta$ 4861"),
-    ("a\\_b", "a\\_b"),
-    ("H$\\alpha$_x", "H$\\alpha$\\_x"),
-])
-def test_latex_escape(text, expected):
-    assert latex_escape(text) == expected
-
-
 @pytest.mark.parametrize("fmt", ["latex", "aastex"])
-def test_latex_output_rereads(table, tmp_path, fmt):
+def test_latex_output(table, tmp_path, fmt):
     path = write_table(table, tmp_path / f"lines.{fmt}.tex", format=fmt)
     text = open(path).read()
+    assert text.startswith("% zline line table\n")
     assert r"H\_alpha \& co" in text and "H$\\beta$" in text and r"\#1 50\%" in text
+    assert r"{}[O\,\textsc{iii}]~5008" in text  # a row may not start with a bare [
     assert r"Lines of 50\% \& more" in text
-    back = Table.read(path, format=f"ascii.{fmt}")
-    labels = [str(v) for v in back[back.colnames[0]]]
-    if fmt == "latex":
-        labels = labels[1:]  # the reader keeps the units row as a data row
-    assert labels == [latex_escape(lab) for lab, _ in _LINES]
-    obs_col = [c for c in back.colnames if c.startswith("observed")][0]
-    cells = [str(v) for v in back[obs_col]][-3:]
-    for cell, row in zip(cells, table):
+    # headings in words with their units, never raw column names
+    assert "fwhm" not in text and "observed\\_err" not in text
+    assert r"$\lambda_{\mathrm{obs}}$" in text and "FWHM" in text
+    assert r"\mathrm{km\,s^{-1}}" in text and r"\mathrm{\mathring{A}}" in text
+    for row in table:
         v, e = format_value_error(row["observed"].value, row["observed_err"].value)
-        assert cell == f"${v} \\pm {e}$"
+        assert f"${v} \\pm {e}$" in text
+    zv, ze = format_value_error(table.meta["z"], table.meta["z_err"])
+    assert f"$z = {zv} \\pm {ze}$" in text
+    assert "optical velocity convention" in text and "Rest positions in vacuum" in text
+
+
+def test_notes_name_line_set_and_level_model(galaxy, tmp_path):
+    _, spec, locks, sol = galaxy
+    t = line_table_for_paper(locks, sol, spec, settings={"line_set": "galaxy-emission",
+                                                         "level_model": "qed"})
+    assert t.meta["line_set"] == "galaxy-emission" and t.meta["level_model"] == "qed"
+    text = open(write_table(t, tmp_path / "t.tex", format="aastex")).read()
+    assert "Line set: galaxy-emission." in text and "from the qed level model" in text
+    assert r"\tablecomments{$z = " in text
 
 
 def test_upper_limit_row(galaxy, tmp_path):

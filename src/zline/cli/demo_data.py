@@ -14,7 +14,8 @@ def add_arguments(parser):
     """Arguments of ``zline demo-data``."""
     parser.add_argument("directory", metavar="DIR", help="directory for the files (created)")
     parser.add_argument("--overwrite", action="store_true",
-                        help="replace files that exist (default: keep them untouched)")
+                        help="replace files that exist if they are zline demo spectra (default: "
+                        "keep them untouched; other files are never replaced)")
     parser.add_argument("--quiet", action="store_true", help="print nothing on success")
 
 
@@ -31,6 +32,8 @@ def run(args):
                                    skip_existing=not args.overwrite)
     except PermissionError as exc:
         raise CommandError(f"cannot write into {str(directory)!r}: {exc.strerror}") from None
+    except FileExistsError as exc:  # --overwrite onto a file zline did not write
+        raise CommandError(str(exc)) from None
     if not args.quiet:
         for name, path in paths.items():
             if existed[name] and not args.overwrite:

@@ -3,7 +3,7 @@
 import json
 
 from zline.cli import CommandError
-from zline.cli._common import add_hdu_option
+from zline.cli._common import add_spectrum_options, json_safe, read_spectrum_for
 
 __all__ = ["COMMAND", "HELP", "add_arguments", "run", "format_text"]
 
@@ -15,7 +15,7 @@ FORMATS = {"text": "aligned key: value lines", "json": "one JSON object (describ
 
 def add_arguments(parser):
     parser.add_argument("file", metavar="FILE", help="FITS file (.fits or .fits.gz)")
-    add_hdu_option(parser)
+    add_spectrum_options(parser)
     parser.add_argument("--format", default="text", choices=sorted(FORMATS),
                         help="output format (default: text)")
 
@@ -33,10 +33,15 @@ def format_text(info):
             if key == "flux_unit" and value == "":
                 value = "(dimensionless)"
             lines.append(f"{key:<{width}}  {value}")
-    for key in ("assumptions", "notes"):
-        if info.get(key):
-            lines.append(f"{key}:")
-            lines.extend(f"  - {item}" for item in info[key])
+    if info.get("flags"):
+        lines.append("assumptions:")
+        lines.extend(f"  - {flag['message']} [{flag['code']}]" for flag in info["flags"])
+    elif info.get("assumptions"):
+        lines.append("assumptions:")
+        lines.extend(f"  - {item}" for item in info["assumptions"])
+    if info.get("notes"):
+        lines.append("notes:")
+        lines.extend(f"  - {item}" for item in info["notes"])
     if info.get("header"):
         lines.append("header:")
         lines.extend(f"  {k} = {v}" for k, v in info["header"].items())
@@ -44,14 +49,14 @@ def format_text(info):
 
 
 def run(args):
-    from zline.physics.spectra import describe_spectrum, read_spectrum
+    from zline.physics.spectra import describe_spectrum
 
     if args.format not in FORMATS:  # argparse checks this too; kept for direct callers
         raise CommandError(f"--format {args.format!r} is not one of {sorted(FORMATS)}")
-    spectrum = read_spectrum(args.file, hdu=args.hdu)  # SpectrumFormatError is a ValueError
+    spectrum = read_spectrum_for(args, COMMAND)  # SpectrumFormatError is a ValueError
     info = describe_spectrum(spectrum)
     if args.format == "json":
-        print(json.dumps(info, indent=2, sort_keys=True))
+        print(json.dumps(json_safe(info), indent=2, sort_keys=True, allow_nan=False))
     else:
         print(format_text(info))
     return 0

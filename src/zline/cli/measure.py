@@ -6,7 +6,7 @@ import sys
 import tempfile
 
 from zline.cli import CommandError
-from zline.cli._common import add_hdu_option
+from zline.cli._common import add_spectrum_options, read_spectrum_for
 
 __all__ = ["COMMAND", "HELP", "FORMATS", "add_arguments", "run", "format_text"]
 
@@ -40,15 +40,21 @@ def add_arguments(parser):
     parser.add_argument("--lines", default=None, choices=sorted(LINE_SETS), metavar="SET",
                         help="line set: " + ", ".join(sorted(LINE_SETS))
                         + " (default: by spectral axis)")
-    add_hdu_option(parser)
+    add_spectrum_options(parser)
     parser.add_argument("--format", default="text", choices=list(FORMATS),
                         help="output format (default: text)")
     parser.add_argument("-o", "--output", default=None, metavar="OUT",
                         help="write to this file (required for fits); existing files are kept")
     parser.add_argument("--overwrite", action="store_true",
-                        help="replace an existing OUT instead of refusing")
+                        help="replace an existing OUT instead of refusing (only a file zline "
+                        "wrote as the same kind of output)")
     parser.add_argument("--blend", type=float, default=None, metavar="KM/S",
-                        help="fit lines predicted closer than this together (default 500; 0: one by one)")
+                        help="detected lines predicted closer than this share one shift (default "
+                             "500; 0: each its own centre); lines whose fit windows overlap are "
+                             "always fitted together")
+    parser.add_argument("--window", type=float, default=None, metavar="KM/S",
+                        help="search half-window around the trial shift (default: the larger of "
+                             "500 km/s and 5 resolution FWHM)")
 
 
 def _num(x, fmt):
@@ -63,7 +69,14 @@ def format_text(result):
            f"velocity    {_num(result['velocity'], '.3f')} +- "
            f"{_num(result['velocity_err'], '.2g')} km/s",
            f"detected    {result['n_detected']} of {len(result['lines'])} lines fitted",
-           f"units       position {result['spectral_unit']}, flux {result['flux_unit']}", ""]
+           f"units       position {result['spectral_unit']}, flux {result['flux_unit']}"]
+    search = result.get("search") or {}
+    if search:
+        out.append(f"search      +-{_num(search.get('window'), '.0f')} km/s, set shifted by "
+                   f"{_num(search.get('shift'), '.1f')} km/s from the trial"
+                   f"{'' if search.get('found') else ' (no line found: trial kept)'}; FWHM floor "
+                   f"from the {search.get('resolution', '?')}")
+    out.append("")
     width = max([len(r["label"]) for r in result["lines"]] + [5])
     out.append(f"{'label':<{width}}  {'observed':>14} {'err':>9} {'flux':>11} {'flux_err':>9} "
                f"{'snr':>7} {'fwhm_kms':>9} {'resid_kms':>9}  note")
@@ -89,7 +102,8 @@ def _write_text(text, path, overwrite=False):
 
     exists = f"output file {path!r} exists; remove it, choose another name or pass --overwrite"
     try:
-        with atomic_path(path, overwrite=overwrite, exists_message=exists) as tmp, open(tmp, "w") as fh:
+        with atomic_path(path, overwrite=overwrite, exists_message=exists,
+                         kind="measure-output") as tmp, open(tmp, "w") as fh:
             fh.write(text + "\n")
     except FileExistsError as exc:
         raise CommandError(str(exc)) from None
@@ -99,20 +113,31 @@ def run(args):
     import astropy.units as u
 
     from zline.physics.measure import measure_spectrum
-    from zline.physics.spectra import read_spectrum
     from zline.physics.tables import write_table
 
     if args.format not in FORMATS:
         raise CommandError(f"--format {args.format!r} is not one of {list(FORMATS)}")
     if args.format in _BINARY and not args.output:
         raise CommandError(f"--format {args.format} is binary and needs -o OUT")
-    if args.output and os.path.exists(args.output) and not args.overwrite:
+    if args.output and os.path.lexists(args.output) and not args.overwrite:
         raise CommandError(f"output file {args.output!r} exists; remove it, choose another name "
                            f"or pass --overwrite")
+    if args.output and args.overwrite:  # refuse before measuring, not after
+        from zline.physics._atomic import check_replaceable
+
+        try:
+            check_replaceable(args.output, "measure-output" if args.format in ("text", "json")
+                              else "line-table")
+        except FileExistsError as exc:
+            raise CommandError(str(exc)) from None
     if args.blend is not None and not args.blend >= 0:
         raise CommandError(f"--blend must be a velocity >= 0 km/s; got {args.blend}")
+    if args.window is not None and not args.window > 0:
+        raise CommandError(f"--window must be a velocity > 0 km/s; got {args.window}")
     options = {} if args.blend is None else {"blend": args.blend * u.km / u.s}
-    spectrum = read_spectrum(args.file, hdu=args.hdu)
+    if args.window is not None:
+        options["window"] = args.window * u.km / u.s
+    spectrum = read_spectrum_for(args, COMMAND)  # prints the reader's warnings
     m = measure_spectrum(spectrum, z=args.z, velocity=args.velocity * u.km / u.s,
                          convention=args.convention, lines=args.lines, **options)
     if not m.lines:
@@ -126,7 +151,10 @@ def run(args):
     else:
         table = m.table()
         if args.output:
-            write_table(table, args.output, format=args.format, overwrite=args.overwrite)
+            try:
+                write_table(table, args.output, format=args.format, overwrite=args.overwrite)
+            except FileExistsError as exc:
+                raise CommandError(str(exc)) from None
         else:
             with tempfile.TemporaryDirectory() as tmpdir:
                 path = write_table(table, os.path.join(tmpdir, "table"), format=args.format)

@@ -1,14 +1,13 @@
 """``zline scan FILE``: blind redshift (or velocity) search of a spectrum, every kind by default."""
 
 import json
-import math
 import sys
 
 from zline.cli import CommandError
-from zline.cli._common import add_hdu_option
+from zline.cli._common import add_spectrum_options, json_safe, read_spectrum_for
 
 __all__ = ["COMMAND", "HELP", "FORMATS", "DEFAULT_SETS", "add_arguments", "add_search_options",
-           "search_options", "run", "format_text", "default_line_set", "json_safe"]
+           "search_options", "run", "format_text", "default_line_set"]
 
 COMMAND = "scan"
 HELP = ("Search a 1D spectrum for its redshift (or velocity): ranked candidates of every kind "
@@ -50,7 +49,7 @@ def add_search_options(parser, z_max=7.0):
 
 def add_arguments(parser):
     parser.add_argument("file", metavar="FILE", help="FITS file (.fits or .fits.gz)")
-    add_hdu_option(parser)
+    add_spectrum_options(parser)
     add_search_options(parser)
     parser.add_argument("--top", type=int, default=5, help="number of candidates (default 5)")
     parser.add_argument("--format", default="text", choices=sorted(FORMATS),
@@ -95,17 +94,6 @@ def read_template(path):
     return None if path is None else read_spectrum(path)
 
 
-def json_safe(obj):
-    """``obj`` with every NaN or infinite float replaced by None (strict JSON)."""
-    if isinstance(obj, float):
-        return obj if math.isfinite(obj) else None
-    if isinstance(obj, dict):
-        return {k: json_safe(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [json_safe(v) for v in obj]
-    return obj
-
-
 def format_text(result):
     vel = any(c.velocity is not None for c in result.candidates)
     head = f"{'v [km/s]':>10}  {'err':>7}" if vel else f"{'z':>10}  {'z_err':>9}"
@@ -124,14 +112,13 @@ def format_text(result):
 
 def run(args):
     from zline.physics.scan import scan_redshift
-    from zline.physics.spectra import read_spectrum
 
     if args.format not in FORMATS:
         raise CommandError(f"--format {args.format!r} is not one of {sorted(FORMATS)}")
     if args.top < 1:
         raise CommandError(f"--top must be a positive integer; got {args.top}")
     kw = search_options(args)
-    spectrum = read_spectrum(args.file, hdu=args.hdu)  # SpectrumFormatError is a ValueError
+    spectrum = read_spectrum_for(args, COMMAND)  # prints the reader's warnings
     template = read_template(args.template)
     if kw["lines"] is None and template is None:
         kw["lines"] = default_line_set(spectrum)
