@@ -402,9 +402,9 @@ def scan_redshift(spectrum, lines=None, z_min=0.0, z_max=7.0, top=5, template=No
     lines : str, optional
         A set of `zline.physics.catalog.LINE_SETS` to search with alone.  Default: every kind
         of `KINDS` on a wavelength axis, ranked on one footing (stars in a velocity window of
-        +-`STAR_VELOCITY_KMS` when ``z_min <= 0``); the radio set as a velocity scan on a
-        frequency axis (``v_min``/``v_max``, default +-`STAR_VELOCITY_KMS`); the X-ray set on an
-        energy axis.
+        +-`STAR_VELOCITY_KMS` when ``z_min <= 0``, absorption-line galaxies above it); the
+        radio set as a velocity scan on a frequency axis (``v_min``/``v_max``, default
+        +-`STAR_VELOCITY_KMS`); the X-ray set on an energy axis.
     z_min, z_max : float
         Redshift range searched (z > -1).
     top : int
@@ -491,13 +491,17 @@ def scan_redshift(spectrum, lines=None, z_min=0.0, z_max=7.0, top=5, template=No
         plan = [(_kind_of_set(lines), lines, s_min, s_max, vel)]
     else:
         plan = []
+        vmax = STAR_VELOCITY_KMS * u.km / u.s
+        star_lo, star_hi = _velocity_range(-vmax, vmax, convention)
+        stars = "star" in kinds and not vel and s_min <= star_hi
         for kind in kinds:
             if kind == "star" and not vel:
-                vmax = STAR_VELOCITY_KMS * u.km / u.s
-                lo, hi = _velocity_range(-vmax, vmax, convention)
-                if s_min > hi:
-                    continue
-                plan.append((kind, scan_kinds.KIND_SETS[kind], lo, hi, True))
+                if stars:
+                    plan.append((kind, scan_kinds.KIND_SETS[kind], star_lo, star_hi, True))
+            elif kind == "absorption-galaxy" and stars and s_max > star_hi:
+                # an absorption spectrum inside the star window reads as a star
+                plan.append((kind, scan_kinds.KIND_SETS[kind], max(s_min, star_hi), s_max,
+                             vel))
             else:
                 plan.append((kind, scan_kinds.KIND_SETS[kind], s_min, s_max, vel))
         if not plan:
