@@ -168,9 +168,9 @@ def _axis_file(path, n, cdelt, ctype="WAVE", cunit="Angstrom", crval=5000.0):
 
 
 def test_degenerate_axes_refused_clearly(tmp_path):
-    spec = read_spectrum(_axis_file(tmp_path / "tiny_step.fits", 2000, 1e-12))
-    with pytest.raises(ValueError, match="CDELT1"):
-        scan_redshift(spec)
+    # CDELT1 = 1e-12: the reader refuses it, or the scan does; either way the message names it
+    with pytest.raises(ValueError, match="CDELT"):
+        scan_redshift(read_spectrum(_axis_file(tmp_path / "tiny_step.fits", 2000, 1e-12)))
     try:
         vrad = read_spectrum(_axis_file(tmp_path / "vrad.fits", 2000, 2.0, ctype="VRAD",
                                         cunit="km/s", crval=-2000.0))
