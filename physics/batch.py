@@ -24,6 +24,7 @@ its ``assumptions`` column.
 tests and benchmarks of the batch mechanics.
 """
 
+import functools
 import glob
 import hashlib
 import json
@@ -52,6 +53,8 @@ FLAGS = {
     "low_snr": "best score below LOW_SNR_SCORE",
     "bad_file": "the file could not be read as a spectrum (see 'error')",
     "scan_failed": "the spectrum was read but the redshift scan refused it (see 'error')",
+    "no_redshift": "no reading is convincing (confidence below "
+    "zline.physics.scan.NO_REDSHIFT_CONFIDENCE): a sky fibre, noise, or too faint",
     "assumed": "the reader assumed something about the axis, units, medium or a damaged file "
                "(see 'assumptions')",
 }
@@ -115,8 +118,10 @@ def expand_inputs(inputs):
     return sorted(found)
 
 
-def _settings(z_min, z_max, lines):
+def _settings(z_min, z_max, lines, klass=None, v_min_kms=None, v_max_kms=None, mask_sky=True,
+              template=None):
     from zline.physics.catalog import LINE_SETS  # noqa: PLC0415
+    from zline.physics.scan import KINDS  # noqa: PLC0415
 
     for name, val in (("z_min", z_min), ("z_max", z_max)):
         if isinstance(val, bool) or not isinstance(val, (int, float, np.floating, np.integer)) \
@@ -125,11 +130,26 @@ def _settings(z_min, z_max, lines):
     if not -1 < z_min < z_max:
         raise ValueError(f"measure_survey: need -1 < z_min < z_max; got z_min={z_min}, "
                          f"z_max={z_max}")
-    if lines not in LINE_SETS:
+    if lines is not None and lines not in LINE_SETS:
         raise ValueError(f"measure_survey: unknown line set {lines!r}; options: "
                          + ", ".join(sorted(LINE_SETS)))
-    return {"z_min": float(z_min), "z_max": float(z_max), "lines": str(lines),
-            "version": BATCH_VERSION}
+    if klass is not None and klass not in KINDS:
+        raise ValueError(f"measure_survey: unknown kind {klass!r}; options: " + ", ".join(KINDS))
+    if (v_min_kms is None) != (v_max_kms is None) or \
+            (v_min_kms is not None and not float(v_min_kms) < float(v_max_kms)):
+        raise ValueError(f"measure_survey: need both v_min_kms < v_max_kms or neither; got "
+                         f"{v_min_kms!r}, {v_max_kms!r}")
+    out = {"z_min": float(z_min), "z_max": float(z_max), "lines": lines,
+           "version": BATCH_VERSION}
+    # scan options beyond the original three enter the settings (and the record keys) only when
+    # they differ from the defaults
+    extra = {"klass": klass, "v_min_kms": None if v_min_kms is None else float(v_min_kms),
+             "v_max_kms": None if v_max_kms is None else float(v_max_kms),
+             "template": None if template is None else os.path.abspath(os.fspath(template))}
+    out.update({k: v for k, v in extra.items() if v is not None})
+    if not mask_sky:
+        out["mask_sky"] = False
+    return out
 
 
 def record_key(path, settings):
@@ -156,14 +176,15 @@ def measure_one(path, settings):
     path : str
         Spectrum file.
     settings : dict
-        ``z_min``, ``z_max``, ``lines`` (as made by `measure_survey`).
+        ``z_min``, ``z_max``, ``lines`` and the scan options (as made by `measure_survey`).
 
     Returns
     -------
     dict
         Plain-JSON record: ``file``, ``hdu``, ``z``, ``z_err``, ``score``, ``n_matched``,
-        ``lines`` (matched labels, comma list), ``z_2``, ``score_2``, ``flags`` (list), ``error``,
-        ``assumptions`` (list of the reader's assumptions about the file).
+        ``lines`` (matched labels, comma list), ``z_2``, ``score_2``, ``class``, ``confidence``,
+        ``flags`` (list), ``error``, ``assumptions`` (list of the reader's assumptions about the
+        file).
     """
     import warnings  # noqa: PLC0415
 
@@ -171,8 +192,8 @@ def measure_one(path, settings):
     from zline.physics.spectra import read_spectrum  # noqa: PLC0415
 
     rec = {"file": path, "hdu": "", "z": None, "z_err": None, "score": None, "n_matched": 0,
-           "lines": "", "z_2": None, "score_2": None, "flags": [], "error": "",
-           "assumptions": []}
+           "lines": "", "z_2": None, "score_2": None, "class": "", "confidence": None,
+           "flags": [], "error": "", "assumptions": []}
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -186,8 +207,7 @@ def measure_one(path, settings):
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            result = scan_redshift(spectrum, lines=settings["lines"], z_min=settings["z_min"],
-                                   z_max=settings["z_max"], top=3)
+            result = scan_redshift(spectrum, top=3, **_scan_keywords(settings))
     except Exception as exc:  # a refused spectrum is a row too
         rec["flags"] = ["scan_failed"]
         rec["error"] = f"{type(exc).__name__}: {exc}"
@@ -198,8 +218,9 @@ def measure_one(path, settings):
         rec["error"] = "scan_redshift returned no candidate"
         return rec
     best = cands[0]
-    rec.update(z=float(best.z), z_err=float(best.z_err), score=float(best.score),
-               n_matched=int(best.n_matched), lines=",".join(best.lines))
+    rec.update(z=float(best.z), z_err=_finite(best.z_err), score=float(best.score),
+               n_matched=int(best.n_matched), lines=",".join(best.lines), **{"class": best.klass},
+               confidence=float(result.confidence))
     flags = []
     if len(cands) > 1:
         rec["z_2"] = float(cands[1].z)
@@ -208,8 +229,36 @@ def measure_one(path, settings):
             flags.append("ambiguous")
     if not best.score >= LOW_SNR_SCORE:
         flags.append("low_snr")
+    if result.no_redshift:
+        flags.append("no_redshift")
     rec["flags"] = flags
     return rec
+
+
+def _finite(x):
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+def _scan_keywords(settings):
+    """Keyword arguments of `zline.physics.scan.scan_redshift` from batch settings."""
+    import astropy.units as u  # noqa: PLC0415
+
+    kw = {"lines": settings.get("lines"), "z_min": settings["z_min"], "z_max": settings["z_max"],
+          "klass": settings.get("klass"), "mask_sky": settings.get("mask_sky", True)}
+    if settings.get("v_min_kms") is not None:
+        kw["v_min"] = settings["v_min_kms"] * u.km / u.s
+        kw["v_max"] = settings["v_max_kms"] * u.km / u.s
+    if settings.get("template"):
+        kw["template"] = _template(settings["template"])
+    return kw
+
+
+@functools.lru_cache(maxsize=4)
+def _template(path):
+    from zline.physics.spectra import read_spectrum  # noqa: PLC0415
+
+    return read_spectrum(path)
 
 
 def parts_directory(catalog):
@@ -294,6 +343,9 @@ def _catalog_table(records, settings):
     table["lines"] = np.array([r["lines"] for r in records], dtype=str)
     table["z_2"] = floats("z_2")
     table["score_2"] = floats("score_2")
+    table["class"] = np.array([r.get("class", "") for r in records], dtype=str)
+    table["confidence"] = np.array([np.nan if r.get("confidence") is None else r["confidence"]
+                                    for r in records], dtype=float)
     table["flags"] = np.array([",".join(r["flags"]) for r in records], dtype=str)
     table["error"] = np.array([r["error"] for r in records], dtype=str)
     table["assumptions"] = np.array(["; ".join(r.get("assumptions", [])) for r in records],
@@ -303,6 +355,9 @@ def _catalog_table(records, settings):
     table["score"].description = "scan score of the best candidate"
     table["z_2"].description = "second candidate's redshift"
     table["score_2"].description = "second candidate's score"
+    table["class"].description = ("kind of spectrum the best candidate reads: emission-galaxy, "
+                                  "absorption-galaxy, quasar or star")
+    table["confidence"].description = "calibrated probability that z (the best candidate) is right"
     table["flags"].description = "comma list: " + "; ".join(f"{k} = {v}" for k, v in FLAGS.items())
     table["assumptions"].description = "what the reader assumed about the file ('; ' list)"
     table.meta["zline_batch"] = {**settings, "ambiguous_ratio": AMBIGUOUS_RATIO,
@@ -310,8 +365,9 @@ def _catalog_table(records, settings):
     return table
 
 
-def measure_survey(inputs, catalog, z_min=0.0, z_max=3.0, lines="galaxy-emission", workers=None,
-                   client=None, progress=None, retry_failed=False, overwrite=False):
+def measure_survey(inputs, catalog, z_min=0.0, z_max=7.0, lines=None, workers=None,
+                   client=None, progress=None, retry_failed=False, overwrite=False,
+                   **scan_options):
     """Blind redshifts of many spectra into one ECSV catalogue, resumable.
 
     Parameters
@@ -325,8 +381,8 @@ def measure_survey(inputs, catalog, z_min=0.0, z_max=3.0, lines="galaxy-emission
         A name ending like a spectrum (``.fits`` ...) is refused.
     z_min, z_max : float
         Redshift range searched.
-    lines : str
-        Line set of `zline.physics.catalog.LINE_SETS`.
+    lines : str or None
+        Line set of `zline.physics.catalog.LINE_SETS`; None searches every kind of spectrum.
     workers : int, optional
         Local worker processes (default: ``os.cpu_count()``); 1 runs in this process.
         Ignored when ``client`` is given.  Workers end by themselves if this process dies.
@@ -342,15 +398,19 @@ def measure_survey(inputs, catalog, z_min=0.0, z_max=3.0, lines="galaxy-emission
     overwrite : bool
         Allow the new catalogue to drop rows of an existing zline catalogue (spectra that are
         not among this run's inputs).
+    **scan_options
+        ``klass`` (a kind of `zline.physics.scan.KINDS`), ``v_min_kms``/``v_max_kms`` (a
+        velocity search), ``mask_sky`` (bool), ``template`` (path of a rest-frame template).
 
     Returns
     -------
     `~astropy.table.Table`
         One row per spectrum, sorted by ``file``: ``file``, ``hdu``, ``z``, ``z_err``, ``score``,
-        ``n_matched``, ``lines``, ``z_2``, ``score_2``, ``flags`` (comma list of `FLAGS`),
-        ``error`` (message for a failed file; NaN measurements there), ``assumptions``.
-        ``meta["zline_batch"]["run"]`` counts this run's ``new``, ``reused`` and ``failed``
-        rows and the failed ones reused without a retry (``failed_reused``).
+        ``n_matched``, ``lines``, ``z_2``, ``score_2``, ``class``, ``confidence``,
+        ``flags`` (comma list of `FLAGS`), ``error`` (message for a failed file; NaN
+        measurements there), ``assumptions``.  ``meta["zline_batch"]["run"]`` counts this run's
+        ``new``, ``reused`` and ``failed`` rows and the failed ones reused without a retry
+        (``failed_reused``).
 
     Raises
     ------
@@ -362,7 +422,7 @@ def measure_survey(inputs, catalog, z_min=0.0, z_max=3.0, lines="galaxy-emission
     CatalogLockedError
         Another run is writing the same catalogue (this one does nothing).
     """
-    settings = _settings(z_min, z_max, lines)
+    settings = _settings(z_min, z_max, lines, **scan_options)
     if workers is None:
         workers = os.cpu_count() or 1
     if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:

@@ -35,12 +35,17 @@ LINE_SETS = {
     "(computed); GHz",
     "xray": "Lyα1, Lyα2 and Lyβ of the hydrogen-like ions C VI ... Ni XXVIII (computed); keV",
     "hydrogen": "H I Lyman, Balmer, Paschen, Brackett and Pfund series (computed); Angstrom",
+    "quasar": "broad and narrow lines of type 1 AGN from Lyα to Hα: Lyα, Balmer (computed), "
+    "N V, Si IV+O IV], C IV, He II, C III], Mg II, [Ne V], [O II], [O III] (tabulated); Angstrom",
+    "stellar": "absorption lines of stars: Balmer series (computed), Ca II H, K and triplet, "
+    "Ca I, Fe I, Mg I b, Mg II, Na I D (tabulated); Angstrom",
 }
 
 _NATURAL_UNIT = {"radio": u.GHz, "xray": u.keV}
 _MEDIA = ("vacuum", "air")
 _UV_CUT_AA = 2000.0
 _DATA_FILE = "lines_tabulated.ecsv"
+_KINDS_FILE = "lines_kinds.ecsv"  # lines of the quasar and stellar sets
 
 #: X-ray set: hydrogen-like ions (spectroscopic names).
 XRAY_IONS = ("C VI", "N VII", "O VIII", "Ne X", "Na XI", "Mg XII", "Al XIII", "Si XIV", "P XV",
@@ -57,6 +62,9 @@ _H_STRENGTH = {
     (6, 5): 0.025,
     (2, 1): 33.0,
 }
+# Broad H I lines of type 1 AGN relative to broad Hbeta (common practice, rough; Lyα is kept at
+# the ratio of a typical composite although the Lyα forest eats part of it).
+_H_QUASAR = {(2, 1): 6.0, (3, 2): 3.5, (4, 2): 1.0, (5, 2): 0.4, (6, 2): 0.2}
 # He II strengths relative to Hbeta in a highly ionised nebula (common practice, rough).
 _HEII_STRENGTH = {(4, 3): 0.05, (3, 2): 0.3, (7, 4): 0.004, (9, 4): 0.002, (5, 3): 0.015}
 # Radio recombination lines: relative to H alpha of the same n (common practice, rough).
@@ -77,9 +85,9 @@ def _h_strength(n_upper, n_lower):
     return _H_STRENGTH[(last, int(n_lower))] * (last / n_upper) ** 3
 
 
-@functools.lru_cache(maxsize=1)
-def _tabulated_vacuum():
-    with resources.as_file(resources.files("zline.physics.data") / _DATA_FILE) as path:
+@functools.lru_cache(maxsize=2)
+def _tabulated_vacuum(name=_DATA_FILE):
+    with resources.as_file(resources.files("zline.physics.data") / name) as path:
         table = QTable.read(path, format="ascii.ecsv")
     return table
 
@@ -166,8 +174,8 @@ def _rows_xray(model):
     return rows
 
 
-def _rows_tabulated(name):
-    table = _tabulated_vacuum()
+def _rows_tabulated(name, data_file=_DATA_FILE):
+    table = _tabulated_vacuum(data_file)
     rows = []
     for row in table:
         if name in str(row["sets"]).split():
@@ -192,6 +200,14 @@ def _vacuum_rows(name, model):
         rows = _rows_radio(model)
     elif name == "xray":
         rows = _rows_xray(model)
+    elif name == "quasar":
+        rows = []
+        for (nu, nl), strength in _H_QUASAR.items():
+            rows += _rows_hydrogen(model, [(nl, (nu, nu))], strength=strength)
+        rows += _rows_tabulated(name, _KINDS_FILE)
+    elif name == "stellar":
+        rows = _rows_hydrogen(model, [(2, (3, 12))], kind="absorption", strength=0.8)
+        rows += _rows_tabulated(name, _KINDS_FILE)
     elif name == "hydrogen":
         rows = _rows_hydrogen(model, [(1, (2, 12)), (2, (3, 30)), (3, (4, 20)), (4, (5, 15)),
                                       (5, (6, 12))])

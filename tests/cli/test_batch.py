@@ -71,3 +71,37 @@ def test_scheduler_address(tmp_path, capsys):
     table = Table.read(out, format="ascii.ecsv")
     assert sorted(table["file"]) == sorted(truth)
     assert max(abs(r["z"] - truth[r["file"]]) for r in table) < 2e-4
+
+
+def test_batch_class_confidence_and_no_redshift(tmp_path, capsys):
+    import sys
+    from pathlib import Path
+
+    from astropy.table import Table
+
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+    import synthetic_spectra as ss
+
+    d = tmp_path / "mixed"
+    d.mkdir()
+    for name, kind, kw in (("a_star.fits", "star", dict(velocity_kms=50.0)),
+                           ("b_sky.fits", "sky", {}),
+                           ("c_old.fits", "absorption-galaxy", dict(z=0.2))):
+        lam, flux, err, _ = ss.make(kind, snr=15.0, seed=3, **kw)
+        ss.write_fits(d / name, lam, flux, err)
+    cat = tmp_path / "cat.ecsv"
+    assert main(["batch", str(d), "-o", str(cat), "--workers", "1"]) == 0
+    table = Table.read(cat, format="ascii.ecsv")
+    rows = {Path(r["file"]).name: r for r in table}
+
+    def flags(name):  # an empty flag list reads back as a masked value
+        f = rows[name]["flags"]
+        return [] if np.ma.is_masked(f) else str(f).split(",")
+
+    assert rows["a_star.fits"]["class"] == "star"
+    assert rows["c_old.fits"]["class"] == "absorption-galaxy"
+    assert abs(rows["c_old.fits"]["z"] - 0.2) < 0.001
+    assert "no_redshift" in flags("b_sky.fits")
+    assert "no_redshift" not in flags("c_old.fits")
+    assert 0 <= rows["c_old.fits"]["confidence"] <= 1
+    capsys.readouterr()

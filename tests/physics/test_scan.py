@@ -87,14 +87,17 @@ def _generated(labels, z, seed, lam=(3800.0, 9200.0), npix=5000, amp=25.0, sigma
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6])
 def test_few_lines_truth_in_top(seed):
     rng = np.random.default_rng(1000 + seed)
-    sets = [("Hα", "Hβ"), ("[O III] 5007", "Hβ", "[O III] 4959"), ("[O II] 3729", "Hβ"),
+    sets = [("Hα", "Hβ"), ("[O III] 5007", "Hβ", "[O III] 4959"),
+            ("[O II] 3726", "[O II] 3729", "Hβ"),
             ("Hα", "[N II] 6583", "[S II] 6716")]
     labels = sets[seed % len(sets)]
     lo = max(3800.0 / _rest(lab).to_value(u.AA) for lab in labels) - 1
     hi = min(9200.0 / _rest(lab).to_value(u.AA) for lab in labels) - 1
     lo = max(lo, 0.0)
     z_true = float(rng.uniform(lo + 0.01, hi - 0.01))  # recorded truth of this trial
-    res = scan_redshift(_generated(labels, z_true, seed), z_min=0.0, z_max=3.0, top=5)
+    # the invented spectrum has no night sky: unmasked, so that a line on an OH position counts
+    res = scan_redshift(_generated(labels, z_true, seed), z_min=0.0, z_max=3.0, top=5,
+                        mask_sky=False)
     zs = [c.z for c in res.candidates]
     assert min(abs(z - z_true) for z in zs) < 2e-4, (labels, z_true, zs)
     hit = min(res.candidates, key=lambda c: abs(c.z - z_true))

@@ -1,5 +1,6 @@
 """``zline batch INPUTS... -o CATALOG``: blind redshifts of many spectra into one ECSV catalogue."""
 
+import os
 import sys
 
 from zline.cli import CommandError
@@ -15,7 +16,7 @@ _LOCK_NOTE = ("A second run on the same CATALOG stops at once with a message nam
 
 
 def add_arguments(parser):
-    from zline.physics.catalog import LINE_SETS
+    from zline.cli.scan import add_search_options
 
     parser.add_argument("inputs", nargs="+", metavar="INPUTS",
                         help="spectrum files, directories or glob patterns")
@@ -31,11 +32,7 @@ def add_arguments(parser):
                         "never replaced)")
     parser.add_argument("--no-progress", action="store_true",
                         help="no progress bar on stderr")
-    parser.add_argument("--z-min", type=float, default=0.0, help="lowest redshift (default 0)")
-    parser.add_argument("--z-max", type=float, default=3.0, help="highest redshift (default 3)")
-    parser.add_argument("--lines", default="galaxy-emission", choices=sorted(LINE_SETS),
-                        metavar="SET", help="line set of the comb (default galaxy-emission); one "
-                        "of " + ", ".join(sorted(LINE_SETS)))
+    add_search_options(parser)
     parser.add_argument("--workers", type=int, default=None, metavar="N",
                         help="local worker processes (default: number of CPUs; 1 = in-process)")
     parser.add_argument("--scheduler", default=None, metavar="ADDRESS",
@@ -44,12 +41,16 @@ def add_arguments(parser):
 
 
 def run(args):
+    from zline.cli.scan import search_options
     from zline.physics.batch import SPECTRUM_SUFFIXES, expand_inputs, measure_survey, progress_bar
 
     if args.workers is not None and args.workers < 1:
         raise CommandError(f"--workers must be a positive integer; got {args.workers}")
-    if not args.z_max > args.z_min or args.z_min <= -1:
-        raise CommandError(f"need -1 < --z-min < --z-max; got {args.z_min}, {args.z_max}")
+    kw = search_options(args)
+    scan_options = dict(klass=kw["klass"], mask_sky=kw["mask_sky"], template=args.template,
+                        v_min_kms=args.v_min, v_max_kms=args.v_max)
+    if args.template is not None and not os.path.isfile(args.template):
+        raise CommandError(f"--template {args.template!r}: no such file")
     if args.output.lower().endswith(SPECTRUM_SUFFIXES):
         raise CommandError(f"-o {args.output!r} is named like a spectrum; CATALOG is an ECSV "
                            f"table: give a name such as 'survey.ecsv'")
@@ -73,7 +74,7 @@ def run(args):
         table = measure_survey(args.inputs, args.output, z_min=args.z_min, z_max=args.z_max,
                                lines=args.lines, workers=args.workers, client=client,
                                progress=progress, retry_failed=args.retry_failed,
-                               overwrite=args.overwrite)
+                               overwrite=args.overwrite, **scan_options)
     except FileExistsError as exc:  # not a zline catalogue, or rows would be dropped
         raise CommandError(str(exc)) from None
     except KeyboardInterrupt:

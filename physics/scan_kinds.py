@@ -1,0 +1,268 @@
+"""Kinds of spectrum the redshift search reads, their line combs, and the shared FFT correlation.
+
+Each kind (`KINDS`) is a line set of `zline.physics.catalog.LINE_SETS` with a rule for the width
+of its teeth:
+
+* ``emission-galaxy`` -- "galaxy-emission", teeth as wide as the measured emission lines;
+* ``absorption-galaxy`` -- "galaxy-absorption", teeth as wide as the measured absorption lines
+  (at least the instrumental width, at most 350 km/s sigma);
+* ``quasar`` -- "quasar", broad lines with teeth of FWHM `BROAD_FWHM_KMS` (5000 km/s, the middle
+  of the 2000-10000 km/s of type 1 AGN, wide enough to hold a C IV blueshift of 1500 km/s inside
+  the tooth), forbidden lines as narrow teeth;
+* ``star`` -- "stellar", absorption teeth, searched only in a velocity window around z = 0,
+  twice: with teeth as wide as the measured absorption lines (cool stars) and with Balmer teeth
+  of sigma `HOT_BALMER_SIGMA_KMS` on the wide-continuum S/N (the broad Balmer lines of hot stars).
+
+Weights: each tooth carries the line's typical strength, capped at `WEIGHT_CAP` (so no single line,
+e.g. Lyα, dominates a comb and a reading resting on one line is a weak reading), with the sign of
+the line (absorption negative).  The data's three FFTs (S/N, variance and coverage) are computed
+once and reused by every kind.
+"""
+
+import functools
+import warnings
+
+import astropy.units as u
+import numpy as np
+from scipy import fft as sfft
+from scipy import signal
+from scipy.signal._peak_finding_utils import PeakPropertyWarning as _PeakPropertyWarning
+
+__all__ = ["KINDS", "KIND_SETS", "WEIGHT_CAP", "BROAD_FWHM_KMS", "Comb", "comb_for", "Correlator",
+           "line_width", "template_length", "refine", "matched", "fine", "features"]
+
+C_KMS = 299792.458  # km/s, exact (SI definition)
+KIND_SETS = {"emission-galaxy": "galaxy-emission", "absorption-galaxy": "galaxy-absorption",
+             "quasar": "quasar", "star": "stellar"}
+KINDS = tuple(KIND_SETS)
+WEIGHT_CAP = 1.5
+HOT_BALMER_SIGMA_KMS = 700.0  # pressure-broadened Balmer lines of A-F stars (common practice)
+BROAD_FWHM_KMS = 5000.0
+WIDE_CONTINUUM_KMS = 40000.0  # running-median window under broad lines (several FWHM)
+ABS_SIGMA_MAX_KMS = 350.0
+
+
+class Comb:
+    """Teeth (ln rest position, signed weight, sigma in ln lambda, label) of one line set."""
+
+    def __init__(self, name, rest_ln, weights, sigmas, labels, data="d"):
+        self.name, self.rest_ln, self.weights = name, rest_ln, weights
+        self.sigmas, self.labels, self.data = sigmas, labels, data
+        w2 = weights**2
+        self.sigma = float(np.sum(w2 * sigmas) / np.sum(w2)) if w2.sum() > 0 else 0.0
+
+    def restrict(self, lo, hi):
+        keep = (self.rest_ln > lo) & (self.rest_ln < hi) & (self.weights != 0)
+        return Comb(self.name, self.rest_ln[keep], self.weights[keep], self.sigmas[keep],
+                    [lab for lab, k in zip(self.labels, keep) if k], self.data)
+
+    def __len__(self):
+        return len(self.rest_ln)
+
+
+def line_width(snr, good, dln, sign=1.0):
+    """Median Gaussian sigma (ln lambda) of the strongest separated features of sign ``sign``."""
+    d = np.where(good, sign * snr, 0.0)
+    sm = np.convolve(d, np.ones(3) / 3, mode="same")
+    peaks, props = signal.find_peaks(sm, height=6.0, distance=10)
+    if len(peaks) == 0:
+        return 1.5 * dln
+    best = peaks[np.argsort(props["peak_heights"])[::-1][:7]]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", _PeakPropertyWarning)
+        widths = signal.peak_widths(sm, best, rel_height=0.5)[0] / 2.3548
+    widths = widths[np.isfinite(widths) & (widths > 0)]
+    if len(widths) == 0:
+        return 1.5 * dln
+    return float(np.clip(np.median(widths), 0.7, 30.0)) * dln
+
+
+@functools.lru_cache(maxsize=32)
+def _set_arrays(line_set_name, medium):
+    from zline.physics.catalog import LINE_SETS, line_set  # noqa: PLC0415
+
+    if line_set_name not in LINE_SETS:
+        raise ValueError(f"Argument 'lines' must be one of {', '.join(map(repr, LINE_SETS))}; "
+                         f"got {line_set_name!r}.")
+    table = line_set(line_set_name, medium=medium, unit=u.AA)
+    rest = table["rest"].to_value(u.AA)
+    sign = np.where(np.asarray(table["kind"]) == "absorption", -1.0, 1.0)
+    strength = np.asarray(table["strength"], dtype=float)
+    labels = tuple(str(x) for x in table["label"])
+    return np.log(rest), sign * np.minimum(strength, WEIGHT_CAP), labels
+
+
+def _is_hydrogen(label):
+    return label[:1] == "H" and (label[1:2] in "αβγδεζηθ" or label[1:].isdigit())
+
+
+def comb_for(line_set_name, medium, sigma, kind=None):
+    """The comb of a line set; ``kind`` (one of `KINDS` or None) picks the tooth-width rule and
+    the S/N the comb is matched to (quasars: the wide-continuum one)."""
+    rest_ln, weights, labels = _set_arrays(line_set_name, medium)
+    sigmas = np.full(rest_ln.size, float(sigma))
+    data = "d"
+    if kind == "quasar":
+        broad = np.array([not lab.startswith("[") for lab in labels])
+        sigmas[broad] = max(sigma, BROAD_FWHM_KMS / 2.3548 / C_KMS)
+        data = "d_wide"
+    elif kind == "star-hot":
+        hyd = np.array([_is_hydrogen(lab) for lab in labels])
+        sigmas[hyd] = max(sigma, HOT_BALMER_SIGMA_KMS / C_KMS)
+        data = "d_wide"
+    weights = weights.copy()
+    # blends whose mix varies from object to object would pull the reading: Ca II H and Hε are
+    # 120 km/s apart; the absorption combs keep Ca II H (cool populations), the hot-star comb Hε
+    drop = {"absorption-galaxy": ("Hε",), "star": ("Hε",), "star-hot": ("Ca II H",)}.get(kind, ())
+    for k, lab in enumerate(labels):
+        if lab in drop:
+            weights[k] = 0.0
+    return Comb(line_set_name, rest_ln.copy(), weights, sigmas, list(labels), data)
+
+
+def _teeth(n, h, comb, t0, square=False):
+    """Sum of Gaussian teeth on the grid x_m = t0 + m*h; ``square``: teeth w**2 g**2 normalised
+    to unit sum per tooth times min(|w|, 1)**2 (the coverage template)."""
+    out = np.zeros(n)
+    for c, w, s in zip(comb.rest_ln - t0, comb.weights, comb.sigmas):
+        half = int(np.ceil(5 * s / h)) + 1
+        m0 = int(round(c / h))
+        m = np.arange(max(0, m0 - half), min(n, m0 + half + 1))
+        g = np.exp(-0.5 * ((m * h - c) / s) ** 2)
+        if square:
+            g2 = g**2
+            out[m] += min(abs(w), 1.0) ** 2 * g2 / (np.sqrt(np.pi) * s / h)
+        else:
+            out[m] += w * g
+    return out
+
+
+def template_length(comb, h):
+    """Number of grid points of the comb's template at step h."""
+    pad = 6 * float(np.max(comb.sigmas))
+    return int(np.ceil((comb.rest_ln.max() - comb.rest_ln.min() + 2 * pad) / h)) + 1
+
+
+class Correlator:
+    """Correlation of the prepared data with any number of combs, sharing the data's FFTs."""
+
+    def __init__(self, prep, max_template):
+        self.prep = prep
+        self.n = len(prep["grid"])
+        self.nfft = sfft.next_fast_len(self.n + max_template, real=True)
+        self._hat = {key: sfft.rfft(prep[key], self.nfft)
+                     for key in ("d", "d_wide", "var", "cov") if prep.get(key) is not None}
+
+    def _xcorr(self, key, tmpl_hat, m):
+        r = sfft.irfft(self._hat[key] * np.conj(tmpl_hat), self.nfft)
+        return np.concatenate([r[self.nfft - (m - 1):], r[: self.n]]) if m > 1 else r[: self.n]
+
+    def correlate(self, comb, s_min, s_max, tmpl=None, t0=None):
+        """Significance at each lag ln(1+z) for a comb (or a sampled template ``tmpl`` whose
+        first point is at ln lambda ``t0``).
+
+        Returns dict ``lag, score, covered`` (covered: sum of min(|w|,1)**2 of the teeth in the
+        data at each lag; None for a template), restricted to s_min..s_max (2 steps margin).
+        """
+        h, g0 = self.prep["h"], self.prep["grid"][0]
+        if tmpl is None:
+            pad = 6 * float(np.max(comb.sigmas))
+            t0 = comb.rest_ln.min() - pad
+            m = template_length(comb, h)
+            tmpl = _teeth(m, h, comb, t0)
+            sq = _teeth(m, h, comb, t0, square=True)
+        else:
+            m, sq = len(tmpl), None
+        that = sfft.rfft(tmpl, self.nfft)
+        corr = self._xcorr(comb.data if comb is not None else "d", that, m)
+        power = self._xcorr("var", sfft.rfft(tmpl**2, self.nfft), m)
+        covered = self._xcorr("cov", sfft.rfft(sq, self.nfft), m) if sq is not None else None
+        lag = g0 + np.arange(-(m - 1), self.n) * h - t0
+        valid = power > 1e-6 * np.max(tmpl**2)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            score = np.where(valid, corr / np.sqrt(np.where(valid, power, 1.0)), 0.0)
+        sel = (lag >= s_min - 2 * h) & (lag <= s_max + 2 * h) & valid
+        return dict(lag=lag[sel], score=score[sel],
+                    covered=None if covered is None else np.maximum(covered[sel], 0.0))
+
+
+def refine(lag, score, i):
+    if 0 < i < len(score) - 1:
+        y0, y1, y2 = score[i - 1], score[i], score[i + 1]
+        den = y0 - 2 * y1 + y2
+        h = lag[i + 1] - lag[i]
+        if den < 0:
+            off = 0.5 * (y0 - y2) / den
+            off = float(np.clip(off, -1.0, 1.0))
+            peak = y1 - 0.25 * (y0 - y2) * off
+            curv = den / h**2
+            err = 1.0 / np.sqrt(max(-peak * curv, 1e-300)) if peak > 0 else np.nan
+            return lag[i] + off * h, peak, err
+    return lag[i], score[i], np.nan
+
+
+def matched(prep, comb, s, threshold=3.0):
+    """Labels of the comb's lines at ln(1+z) = s with a local S/N above threshold."""
+    grid, cov, h, var = prep["grid"], prep["cov"], prep["h"], prep["var"]
+    d = prep[comb.data]
+    c = comb.rest_ln + s
+    inside = (c >= grid[0]) & (c <= grid[-1])
+    if not inside.any():
+        return []
+    c, w, sig = c[inside], comb.weights[inside], comb.sigmas[inside]
+    labels = [lab for lab, k in zip(comb.labels, inside) if k]
+    i0 = np.clip(np.round((c - grid[0]) / h).astype(int), 0, len(grid) - 1)
+    half = int(np.ceil(3 * sig.max() / h)) + 1
+    idx = i0[:, None] + np.arange(-half, half + 1)[None, :]
+    ok = (idx >= 0) & (idx < len(grid))
+    idx = np.clip(idx, 0, len(grid) - 1)
+    g = np.exp(-0.5 * ((grid[idx] - c[:, None]) / sig[:, None]) ** 2) * cov[idx] * ok
+    g *= np.abs(grid[idx] - c[:, None]) <= 3 * sig[:, None] + h
+    norm = np.sqrt(np.sum(var[idx] * g**2, axis=1))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        local = np.sign(w) * np.sum(d[idx] * g, axis=1) / norm
+    hit = (norm > 0) & (cov[i0] > 0) & (local >= threshold)
+    order = np.argsort(-np.where(hit, local, -np.inf))
+    return [labels[k] for k in order if hit[k]]
+
+
+def fine(prep, comb, s0, n=17):
+    """Peak of the comb correlation near s0 evaluated directly on a lag grid 8x finer than the
+    FFT's (removes the sub-step bias of a parabola through three coarse lags): (s, err)."""
+    grid, h = prep["grid"], prep["h"]
+    d, var = prep[comb.data], prep["var"]
+    c = comb.rest_ln + s0
+    inside = (c >= grid[0]) & (c <= grid[-1])
+    if not inside.any():
+        return s0, np.nan
+    c, w, sig = c[inside], comb.weights[inside], comb.sigmas[inside]
+    half = int(np.ceil(4 * sig.max() / h)) + 3
+    i0 = np.clip(np.round((c - grid[0]) / h).astype(int), 0, len(grid) - 1)
+    idx = np.clip(i0[:, None] + np.arange(-half, half + 1)[None, :], 0, len(grid) - 1)
+    x = grid[idx] - c[:, None]  # offset of each grid point from its tooth at s0
+    dd, vv = d[idx], var[idx]
+    offs = np.linspace(-1.5 * h, 1.5 * h, n)
+    t = w[None, :, None] * np.exp(-0.5 * ((x[None] - offs[:, None, None])
+                                          / sig[None, :, None]) ** 2)
+    num = np.einsum("klm,lm->k", t, dd)
+    den = np.einsum("klm,lm->k", t * t, vv)
+    score = np.where(den > 0, num / np.sqrt(np.where(den > 0, den, 1.0)), 0.0)
+    k = int(np.argmax(score))
+    if 0 < k < n - 1:
+        s_fine, _, _ = refine(offs, score, k)
+    else:
+        s_fine = offs[k]
+    return s0 + float(s_fine), np.nan
+
+
+def features(comb, lines):
+    """Number of separate features among matched lines (lines closer than three tooth widths,
+    e.g. Ca II H and Hε, count once)."""
+    pos = {lab: (r, sg) for lab, r, sg in zip(comb.labels, comb.rest_ln, comb.sigmas)}
+    xs = sorted(pos[lab] for lab in lines if lab in pos)
+    n, last = 0, -np.inf
+    for r, sg in xs:
+        if r - last > 3 * sg:
+            n += 1
+            last = r
+    return n
