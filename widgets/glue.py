@@ -1,12 +1,11 @@
 """Session, table, catalogue and scan glue of the line identifier: calls into zline.physics.
 
-`find_candidates` is the one place the widget calls the redshift scan; `ConfirmStep` is the
+`ConfirmStep` is the
 one rule every writing button follows (an existing file is replaced only on a second press).
 """
 
 import os
 import time
-import warnings
 
 import astropy.units as u
 import numpy as np
@@ -14,9 +13,9 @@ from astropy.table import Table
 
 from zline.physics import batch, session, tables
 from zline.physics.kinematics import velocity_from
-from zline.physics.scan import scan_redshift, scan_velocity
+from zline.physics.scan_kinds import KIND_SETS
 
-__all__ = ["ConfirmStep", "find_candidates", "save", "export", "restore_into", "catalog_entry",
+__all__ = ["ConfirmStep", "save", "export", "restore_into", "catalog_entry",
            "write_to_catalog", "CONFIRM_SECONDS"]
 
 _KMS = u.km / u.s
@@ -41,21 +40,6 @@ class ConfirmStep:
             return True
         self._armed = (key, now)
         return False
-
-
-def find_candidates(spectrum, line_set, z_min, z_max, top, convention):
-    """Run the redshift (or, within |z| <= 0.01, velocity) scan; returns (result, kind).
-
-    The single call site of `zline.physics.scan` in the widget.
-    """
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        if max(abs(z_min), abs(z_max)) <= 0.01:
-            one = 1.0 * u.AA
-            v_lo, v_hi = (velocity_from((1.0 + z) * one, one, convention=convention) for z in (z_min, z_max))
-            return scan_velocity(spectrum, lines=line_set, v_min=v_lo.to(_KMS), v_max=v_hi.to(_KMS),
-                                 top=top, convention=convention), "velocity"
-        return scan_redshift(spectrum, lines=line_set, z_min=z_min, z_max=z_max, top=top), "redshift"
 
 
 def session_state(w):
@@ -155,9 +139,9 @@ def catalog_entry(catalog, row, lines):
         z = entry["z"]
     if not np.isfinite(z):
         z = 0.0  # a row without a candidate (e.g. a bad file): open at rest
-    if lines is None:
+    if lines is None:  # the set the batch searched, else the one of the kind the row reads
         meta = Table.read(os.fspath(catalog), format="ascii.ecsv").meta.get("zline_batch", {})
-        lines = meta.get("lines", "galaxy-emission")
+        lines = meta.get("lines") or KIND_SETS.get(str(entry.get("class") or ""))
     return entry["file"], float(z), lines, entry["row"]
 
 
@@ -239,89 +223,6 @@ def lock_table(w):
 
 class SessionMixin:
     """Scan, files, sessions and the survey catalogue for `LineIdentifier`."""
-
-    def scan(self, z_min=0.0, z_max=3.0, top=5, lines=None):
-        """Search the spectrum for redshifts where the line set matches, and list the candidates.
-
-        Uses `zline.physics.scan.scan_redshift`; a range within |z| <= 0.01 is searched as a
-        velocity with `zline.physics.scan.scan_velocity` in the widget's convention.
-
-        Parameters
-        ----------
-        z_min, z_max : float
-            Redshift range searched.
-        top : int
-            Number of candidates.
-        lines : str, optional
-            Line set of `zline.physics.catalog.LINE_SETS`; default the widget's own set.
-
-        Returns
-        -------
-        `zline.physics.scan.ScanResult`
-        """
-        from zline.physics.catalog import LINE_SETS
-        for name, val in (("z_min", z_min), ("z_max", z_max)):
-            if isinstance(val, u.Quantity) or isinstance(val, bool) or not np.isscalar(val):
-                raise TypeError(f"scan: '{name}' must be a plain redshift number; got {val!r}")
-        name = lines if lines is not None else self._set_name
-        if name == "custom":
-            raise ValueError(f"scan: the widget shows a custom line table; pass lines=<one of {sorted(LINE_SETS)}>")
-        bar = self.ui.scan_progress
-        bar.bar_style, bar.value = "", 1
-        self._say(f"searching {z_min:g} <= z <= {z_max:g} with line set {name!r} ...")
-        try:
-            result, kind = find_candidates(self.spectrum, name, z_min, z_max, top, self.convention)
-        except Exception:
-            bar.value, bar.bar_style = 0, "danger"
-            raise
-        self._scan = (result, kind)
-        options = []
-        for i, c in enumerate(result.candidates):
-            where = (f"v={c.velocity.to_value(_KMS):+.1f} km/s" if kind == "velocity" and c.velocity is not None
-                     else f"z={c.z:.5f}")
-            options.append((f"{i + 1}. {where}  score {c.score:.3g}  {c.n_matched} lines", i))
-        self._syncing = True
-        try:
-            self.ui.candidates.options = options
-            self.ui.candidates.value = None
-        finally:
-            self._syncing = False
-        bar.value, bar.bar_style = bar.max, "success"
-        if options:
-            self._say(f"{len(options)} candidate(s); click one to move the overlay there")
-        else:
-            self._say("no candidate found in that range", level="warning")
-        return result
-
-    @property
-    def candidates(self):
-        """Candidates of the last `scan` (`zline.physics.scan.Candidate`), best first."""
-        return tuple(self._scan[0].candidates) if self._scan[0] is not None else ()
-
-    def jump_to(self, i):
-        """Move the overlay to candidate ``i`` (0 = best) of the last `scan`; returns the candidate."""
-        cands = self.candidates
-        if not cands:
-            raise ValueError("jump_to: no candidates yet; run scan() first")
-        if isinstance(i, bool) or not isinstance(i, (int, np.integer)) or not 0 <= i < len(cands):
-            raise IndexError(f"jump_to: candidate index must be 0..{len(cands) - 1}; got {i!r}")
-        c = cands[int(i)]
-        with self.hold_trait_notifications():
-            if self._scan[1] == "velocity" and c.velocity is not None:
-                self.z, self.velocity = 0.0, float(c.velocity.to_value(_KMS))
-            else:
-                self.z, self.velocity = float(c.z), 0.0
-        self._sync_controls(recentre=True)
-        self._syncing = True
-        try:
-            if self.ui.candidates.value != int(i):
-                self.ui.candidates.value = int(i)
-        finally:
-            self._syncing = False
-        lines = ", ".join(c.lines[:6]) + (" ..." if len(c.lines) > 6 else "")
-        self._say(f"candidate {int(i) + 1}: z = {c.z:.5f} (score {c.score:.3g}; {c.n_matched} line(s)"
-                  f"{': ' + lines if lines else ''})")
-        return c
 
     def export(self, path, format="ecsv", overwrite=False):
         """Write the line table of the locks for a paper (`zline.physics.tables`).

@@ -20,6 +20,7 @@ from zline.physics import catalog, kinematics
 from zline.physics.spectra import read_spectrum
 
 from . import glue
+from .candidates import ScanMixin
 from ._marks import PALETTE, TELLURIC_AA
 from .controls import Controls, ShiftControlsMixin, help_html
 from .locking import LockingMixin
@@ -33,7 +34,8 @@ _KMS = u.km / u.s
 _C_KMS = 299792.458             # km/s, exact (SI definition)
 
 
-class LineIdentifier(LockingMixin, ShiftControlsMixin, glue.SessionMixin, IdentifierState, W.VBox):
+class LineIdentifier(LockingMixin, ShiftControlsMixin, ScanMixin, glue.SessionMixin, IdentifierState,
+                     W.VBox):
     """Overlay predicted lines on a spectrum at a trial redshift, lock identifications, solve z.
 
     Parameters

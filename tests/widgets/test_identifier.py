@@ -509,19 +509,24 @@ def test_rest_axis_multiplies_on_a_frequency_axis():
 # ------------------------------------------------------------------ candidate scan
 def test_scan_lists_candidates_and_a_click_jumps(spectrum):
     from zline.physics import scan as scan_mod
-    w = LineIdentifier(spectrum, lines="galaxy-emission", z=0.0)
-    result = w.scan(z_min=0.0, z_max=1.0, top=4)
-    direct = scan_mod.scan_redshift(spectrum, lines="galaxy-emission", z_min=0.0, z_max=1.0, top=4)
+    w = LineIdentifier(spectrum, lines="galaxy-absorption", z=0.0)
+    result = w.scan(z_min=0.0, z_max=1.0, top=4)   # every kind by default
+    direct = scan_mod.scan_redshift(spectrum, z_min=0.0, z_max=1.0, top=4)
     assert [c.z for c in result.candidates] == pytest.approx([c.z for c in direct.candidates])
+    assert [c.klass for c in result.candidates] == [c.klass for c in direct.candidates]
     assert result.candidates[0].z == pytest.approx(TRUE_Z, abs=1e-3)
+    assert result.candidates[0].klass == "emission-galaxy"
     options = w.ui.candidates.options
     assert len(options) == len(result.candidates)
     assert f"z={result.candidates[1].z:.5f}" in options[1][0] and "lines" in options[1][0]
+    assert result.candidates[1].klass in options[1][0]
+    assert "confidence" in w.status
     assert w.ui.scan_progress.value == w.ui.scan_progress.max
     frontend_update(w.ui.candidates, index=1)                 # a click on the second candidate
     assert w.z == pytest.approx(result.candidates[1].z)
     c = w.jump_to(0)
     assert w.z == pytest.approx(c.z) and w.velocity == 0.0 and w.ui.candidates.value == 0
+    assert w._set_name == c.line_set == "galaxy-emission"    # the reading's kind is drawn
     with pytest.raises(IndexError):
         w.jump_to(len(result.candidates))
 
@@ -535,10 +540,13 @@ def test_scan_button_and_plain_errors(spectrum, lines):
     w.ui.scan.click()
     assert "Problem" in w.status and "z_min" in w.status
     custom = LineIdentifier(spectrum, lines=lines)
-    with pytest.raises(ValueError, match="custom"):
-        custom.scan()
     with pytest.raises(ValueError, match="no candidates"):
         custom.jump_to(0)
+    with pytest.raises(ValueError, match="'lines' must be one of"):
+        custom.scan(lines="custom")
+    custom.scan(z_min=0.05, z_max=0.2)          # every kind, whatever table is drawn
+    custom.jump_to(0)
+    assert custom._set_name == "custom" and custom.z == pytest.approx(TRUE_Z, abs=1e-3)
 
 
 def test_scan_near_zero_searches_velocity(spectrum):
@@ -551,7 +559,7 @@ def test_scan_near_zero_searches_velocity(spectrum):
     near_rest = Spectrum(spectral_axis=x * u.AA, flux=y * u.Jy,
                          uncertainty=spectrum.uncertainty, meta={"zline": {"medium": "vacuum"}})
     w = LineIdentifier(near_rest, lines="galaxy-emission")
-    w.scan(z_min=-0.002, z_max=0.002, top=2)
+    w.scan(z_min=-0.002, z_max=0.002, top=2, lines="galaxy-emission")
     assert w._scan[1] == "velocity"
     best = w.candidates[0]
     assert best.velocity.to_value(u.km / u.s) == pytest.approx(v_true, abs=30.0)
