@@ -47,7 +47,7 @@ BLEND_DISTANCE = 500 * _KMS
 FIT_HALF_WINDOW = 4.0
 #: A width class of a group fits its own FWHM only when one of its detected lines has at least
 #: this S/N; otherwise the FWHM found for the whole set is held.
-WIDTH_FREE_SNR = 10.0
+WIDTH_FREE_SNR = 5.0
 
 #: Physical type of the spectral axis -> default line set.
 DEFAULT_SETS = {"length": "galaxy-emission", "wavenumber": "galaxy-emission",

@@ -178,3 +178,104 @@ def test_unresolved_blend_gets_expected_ratio(demo):
     assert float(h8["fit"].center.to_value(u.AA) - he["fit"].center.to_value(u.AA)) > 0.3
     d = m.to_dict()
     assert {"He I 3889", "H8"} <= set({line["label"]: line["blend"] for line in d["lines"]}["H8"])
+
+
+# ------------------------------------------------------------------------------------------
+# Monte-Carlo honesty: one invented emission-line spectrum (SDSS-like log-linear sampling,
+# 69 km/s pixels, Gaussian noise exactly as its error array says), many noise realisations.
+
+_C_KMS = 299792.458
+_MC_Z = 0.02
+_MC_SIGMA_V = 70.0  # km/s, line sigma (instrument and gas)
+_MC_PIX_KMS = 69.0
+_MC_NOISE = 1.0
+_MC_N = 120
+
+
+def _mc_axis():
+    lnx = np.arange(np.log(6250 * (1 + _MC_Z)), np.log(6790 * (1 + _MC_Z)), _MC_PIX_KMS / _C_KMS)
+    return lnx, np.exp(lnx)
+
+
+def _mc_flux_for_snr(snr, mu):
+    # white noise, fixed Gaussian profile: sigma_F = noise * sqrt(2 sqrt(pi) sigma dx)
+    sig, dx = mu * _MC_SIGMA_V / _C_KMS, mu * _MC_PIX_KMS / _C_KMS
+    return snr * _MC_NOISE * np.sqrt(2 * np.sqrt(np.pi) * sig * dx)
+
+
+def _mc_spectrum(true_snr, rng):
+    from scipy.special import erf
+    from specutils import Spectrum
+    from astropy.nddata import StdDevUncertainty
+
+    from zline.physics.catalog import line_set
+
+    full = line_set("galaxy-emission")
+    lnx, x = _mc_axis()
+    edges = np.exp(np.concatenate([[lnx[0]], lnx[1:]] ) - 0.5 * _MC_PIX_KMS / _C_KMS)
+    edges = np.append(edges, np.exp(lnx[-1] + 0.5 * _MC_PIX_KMS / _C_KMS))
+    y = np.full(x.size, 10.0)
+    truth = {}
+    for label, rest in zip(full["label"], full["rest"].to_value(u.AA)):
+        mu = rest * (1 + _MC_Z)
+        if not x[0] < mu < x[-1]:
+            continue
+        flux = _mc_flux_for_snr(true_snr.get(str(label), 0.0), mu)
+        truth[str(label)] = flux
+        sig = mu * _MC_SIGMA_V / _C_KMS
+        cdf = 0.5 * (1 + erf((edges - mu) / (np.sqrt(2) * sig)))
+        y += flux * np.diff(cdf) / np.diff(edges)  # pixel-integrated Gaussian
+    y += rng.normal(0, _MC_NOISE, x.size)
+    spec = Spectrum(flux=y * u.Unit("1e-17 erg / (s cm2 AA)"), spectral_axis=x * u.AA,
+                    uncertainty=StdDevUncertainty(np.full(x.size, _MC_NOISE)))
+    return spec, truth
+
+
+_MC_TRUE_SNR = {"Hα": 10.0, "[N II] 6583": 10.0, "[N II] 6548": 10.0 / 2.94,
+                "[S II] 6716": 10.0, "[S II] 6731": 10.0, "[O I] 6300": 2.0}
+_MC_ZERO = ("[O I] 6364", "He I 6678")  # no flux at all
+
+
+@pytest.fixture(scope="module")
+def monte_carlo():
+    rng = np.random.default_rng(20261202)
+    runs = []
+    for _ in range(_MC_N):
+        spec, truth = _mc_spectrum(_MC_TRUE_SNR, rng)
+        m = measure_spectrum(spec, z=_MC_Z)
+        runs.append((m, truth))
+    return runs
+
+
+def test_monte_carlo_false_detections(monte_carlo):
+    # lines with zero true flux: detected (3 sigma, expected sign) in <= 1 % of the trials
+    trials = [{r["label"]: r for r in m.lines}[lab]["detected"]
+              for m, _ in monte_carlo for lab in _MC_ZERO]
+    assert len(trials) == 2 * _MC_N
+    assert np.mean(trials) <= 0.01
+
+
+def test_monte_carlo_flux_pulls(monte_carlo):
+    # Halpha, [N II] 6583 and [S II] 6716, 6731 at S/N 10, neighbours in the same window
+    for label in ("Hα", "[N II] 6583", "[S II] 6716", "[S II] 6731"):
+        pulls = np.array([(r["fit"].flux.value - truth[label]) / r["fit"].flux_err.value
+                          for m, truth in monte_carlo
+                          for r in m.lines if r["label"] == label])
+        assert pulls.size == _MC_N
+        assert abs(pulls.mean()) < 0.3, label
+        assert 0.85 < pulls.std() < 1.15, label
+
+
+def test_monte_carlo_redshift_pull(monte_carlo):
+    pulls = np.array([(m.z - _MC_Z) / m.z_err for m, _ in monte_carlo])
+    assert np.all(np.isfinite(pulls))
+    assert abs(pulls.mean()) < 0.3 and 0.85 < pulls.std() < 1.15
+
+
+def test_monte_carlo_upper_limits_cover(monte_carlo):
+    # every undetected line's limit max(F, 0) + 3 sigma covers its true flux in >= 99 % of the
+    # trials (one-sided 3 sigma: 99.87 % expected); [O I] 6300 has a true S/N of 2
+    cover = [truth[r["label"]] <= r["limit"].value
+             for m, truth in monte_carlo for r in m.lines if not r["detected"]]
+    assert len(cover) > 2 * _MC_N
+    assert np.mean(cover) >= 0.99
