@@ -279,3 +279,111 @@ def test_monte_carlo_upper_limits_cover(monte_carlo):
              for m, truth in monte_carlo for r in m.lines if not r["detected"]]
     assert len(cover) > 2 * _MC_N
     assert np.mean(cover) >= 0.99
+
+
+def test_radio_lines_found_from_zero():
+    # invented radio recombination spectrum, lines at +52 km/s (radio convention), trial v = 0:
+    # the search window finds them and the velocity comes out within its error
+    from astropy.nddata import StdDevUncertainty
+    from specutils import Spectrum
+
+    from zline.physics.catalog import line_set
+    from zline.physics.kinematics import observed_position
+
+    nu = np.arange(4.82e9, 4.90e9, 50e3)  # Hz, 50 kHz channels (~3 km/s)
+    lines = line_set("radio", unit=u.Hz)
+    centres = observed_position(lines["rest"], velocity=52 * u.km / u.s,
+                                convention="radio").to_value(u.Hz)
+    rng = np.random.default_rng(52)
+    y = np.full(nu.size, 0.2)
+    for c, s in zip(centres, lines["strength"]):
+        sig = c * 25.0 / 2.3548 / _C_KMS  # FWHM 25 km/s
+        y += 0.05 * float(s) * np.exp(-0.5 * ((nu - c) / sig) ** 2)
+    noise = 0.002
+    y += rng.normal(0, noise, nu.size)
+    spec = Spectrum(flux=y * u.K, spectral_axis=nu * u.Hz,
+                    uncertainty=StdDevUncertainty(np.full(nu.size, noise)))
+    m = measure_spectrum(spec, z=0.0, convention="radio")
+    assert m.search["found"] and len(m.locks) >= 3
+    dv = abs(m.velocity.to_value(u.km / u.s) - 52.0)
+    assert dv < 3 * m.velocity_err.to_value(u.km / u.s)
+
+
+# ------------------------------------------------------------------------------------------
+# real survey spectra (../shared/realdata through the realdata fixture)
+
+
+def _real(row):
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the reader's notes on the survey layout
+        return read_spectrum(row["path"])
+
+
+def test_offset_start_converges_to_the_same_z(realdata):
+    # an emission-line galaxy, trials 300 km/s above and 150 km/s below the published z
+    # (SDSS pipeline redshift, HDU 2 column Z) give the z found from the published value
+    row = realdata[realdata["file"] == "spec-0266-51630-0215.fits"][0]
+    spec = _real(row)
+    z_pub = float(row["z_published"])
+    ref = measure_spectrum(spec, z=z_pub)
+    assert len(ref.locks) >= 5
+    for dv in (300.0, -150.0):
+        m = measure_spectrum(spec, z=(1 + z_pub) * (1 + dv / _C_KMS) - 1)
+        assert abs(m.z - ref.z) < 0.2 * ref.z_err, dv
+        assert {lock.label for lock in m.locks} == {lock.label for lock in ref.locks}
+        assert abs(m.search["shift"].to_value(u.km / u.s) + dv) < 50
+
+
+def test_absorption_galaxies_give_published_z(realdata):
+    # the absorption-line galaxies: Ca II H, K, Mg I b, Na I D from the catalogue, absorption
+    # detected with its sign; z within errors of the SDSS pipeline redshift (HDU 2, column Z)
+    from astropy.table import QTable
+
+    from zline.physics.catalog import line_set
+
+    full = line_set("galaxy-absorption")
+    names = ["Ca II K", "Ca II H", "Mg I b 5167", "Mg I b 5173", "Mg I b 5184", "Na I D2",
+             "Na I D1"]
+    table = QTable(full[np.isin(full["label"], names)])
+    rows = realdata[realdata["kind"] == "galaxy_absorption"]
+    assert len(rows) == 3
+    for row in rows:
+        m = measure_spectrum(_real(row), z=float(row["z_published"]), lines=table)
+        assert len(m.locks) >= 2, row["file"]
+        assert all(lock.fit.flux.value < 0 for lock in m.locks)
+        assert all(r["fit"].ew.value < 0 for r in m.lines if r["detected"])
+        dz = abs(m.z - float(row["z_published"]))
+        assert dz < 3 * np.hypot(m.z_err, float(row["z_published_err"])), row["file"]
+
+
+def test_quasar_broad_lines_measured_with_offsets(realdata):
+    # broad lines from published vacuum rest wavelengths (Lyα, C IV and Mg II doublet means,
+    # C III], Hβ, Hα: the SDSS spectroscopic pipeline line list; [O III] 5007 narrow)
+    from astropy.table import QTable
+
+    table = QTable({
+        "label": ["Lyα", "C IV 1549", "C III] 1909", "Mg II 2800", "Hβ", "[O III] 5007", "Hα"],
+        "rest": [1215.67, 1549.48, 1908.73, 2799.94, 4862.68, 5008.24, 6564.61] * u.AA,
+        "kind": ["broad", "broad", "broad", "broad", "broad", "emission", "broad"]})
+    rows = realdata[realdata["kind"] == "qso"]
+    chosen = [r for r in rows if r["file"] in ("spec-3655-55240-0630.fits",
+                                               "spec-3655-55240-0994.fits",
+                                               "spec-3655-55240-0686.fits",
+                                               "spec-3655-55240-0472.fits",
+                                               "spec-9367-57758-0446.fits")]
+    assert len(chosen) == 5
+    n_broad = n_measured = 0
+    for row in chosen:
+        m = measure_spectrum(_real(row), z=float(row["z_published"]), lines=table)
+        d = m.to_dict()
+        for line in d["lines"]:
+            if line["class"] != "broad":
+                continue
+            n_broad += 1
+            if line["detected"]:
+                n_measured += 1
+                assert line["offset_kms"] is not None and abs(line["offset_kms"]) < 5000
+                assert 1000 < line["fwhm_kms"] < 20000
+    assert n_measured >= 0.9 * n_broad and n_broad >= 15
