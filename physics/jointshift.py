@@ -103,8 +103,12 @@ def joint_shift(windows, start_kms, scale_kms, length_axis=True, n_grid=31, min_
     # refine the minimum on a fine grid between the neighbours, then the Delta chi2 = 1 crossings
     fine = np.linspace(grid[k - 1], grid[k + 1], 21)
     chif = np.array([total(v) for v in fine])
-    j = int(np.argmin(chif))
-    v0, c0 = fine[j], chif[j]
+    j = int(np.clip(np.argmin(chif), 1, fine.size - 2))
+    a, b, c = chif[j - 1], chif[j], chif[j + 1]
+    h = fine[1] - fine[0]
+    curv = a - 2 * b + c
+    v0 = fine[j] + (0.5 * h * (a - c) / curv if curv > 0 else 0.0)  # parabola through three
+    c0 = total(v0)
 
     def crossing(direction):
         lo_v, step = v0, (grid[1] - grid[0]) * direction

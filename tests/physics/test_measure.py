@@ -387,3 +387,57 @@ def test_quasar_broad_lines_measured_with_offsets(realdata):
                 assert line["offset_kms"] is not None and abs(line["offset_kms"]) < 5000
                 assert 1000 < line["fwhm_kms"] < 20000
     assert n_measured >= 0.9 * n_broad and n_broad >= 15
+
+
+# ------------------------------------------------------------------------------------------
+# the pipeline's small parts: find, group, class, joint shift
+
+
+def test_line_class_and_grouping():
+    from zline.physics.linefind import group_lines, line_class
+
+    assert line_class("absorption") == "absorption" and line_class("broad") == "broad"
+    assert line_class("emission", "Hβ", "quasar") == "broad"
+    assert line_class("emission", "[O III] 5007", "quasar") == "emission"
+    assert group_lines([10.0, 11.0, 20.0, 20.5], [0.6, 0.6, 0.3, 0.3]) == [[0, 1], [2, 3]]
+    assert group_lines([10.0, 11.0], [0.4, 0.4]) == [[0], [1]]
+
+
+def test_find_shift_places_the_set_not_a_spike():
+    from astropy.nddata import StdDevUncertainty
+    from specutils import Spectrum
+
+    from zline.physics.linefind import find_shift
+
+    x = np.linspace(6400.0, 6800.0, 2001)  # 0.2 A pixels
+    rest = np.array([6549.86, 6564.61, 6585.27])
+    true = rest * (1 + 250 / _C_KMS)  # the set 250 km/s above the trial
+    rng = np.random.default_rng(3)
+    y = 1 + sum(f * np.exp(-0.5 * ((x - m) / 1.0) ** 2) for f, m in zip((2, 6, 5), true))
+    y[np.argmin(np.abs(x - 6570.0))] += 8.0  # a one-pixel spike near Halpha's trial position
+    y += rng.normal(0, 0.1, x.size)
+    spec = Spectrum(flux=y * u.Jy, spectral_axis=x * u.AA,
+                    uncertainty=StdDevUncertainty(np.full(x.size, 0.1)))
+    found = find_shift(spec, rest * u.AA, ["emission"] * 3)
+    assert found.found and abs(found.velocity.to_value(u.km / u.s) - 250) < 10
+    narrow = find_shift(spec, rest * u.AA, ["emission"] * 3, window=50 * u.km / u.s)
+    assert abs(narrow.velocity.to_value(u.km / u.s)) <= 50
+
+
+def test_joint_shift_error_interval():
+    from zline.physics.jointshift import JointWindow, joint_shift
+
+    # one line, known width, white noise: the Delta chi2 = 1 half widths match the analytic
+    # centroid error (common practice)
+    rng = np.random.default_rng(8)
+    x = np.linspace(6540.0, 6590.0, 501)
+    sig, flux, noise = 1.5, 40.0, 0.2
+    y = 3 + flux * np.exp(-0.5 * ((x - 6565.0) / sig) ** 2) / (sig * np.sqrt(2 * np.pi))
+    y += rng.normal(0, noise, x.size)
+    win = JointWindow(x, y, np.full(x.size, noise), 1, np.array([6565.0]), np.array([sig]),
+                      np.array([True]))
+    v, lo, hi, scale = joint_shift([win], 0.0, 5.0, min_scale=0.5)
+    # Fisher: 1 / sigma_mu^2 = (flux / noise)^2 / dx * integral g'^2 = ... / (4 sqrt(pi) sigma^3)
+    expect = noise * np.sqrt(4 * np.sqrt(np.pi) * sig**3 * 0.1) / flux / 6565.0 * _C_KMS
+    assert lo == pytest.approx(expect, rel=0.15) and hi == pytest.approx(expect, rel=0.15)
+    assert abs(v) < 4 * expect and 0.85 < scale < 1.2
