@@ -473,7 +473,10 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
     s_unit = u.Quantity(spectrum.spectral_axis).unit
     rows, search = [], {}
     if keep:
-        found = find_shift(spectrum, sel["predicted"][keep], [sel["cls"][i] for i in keep], win)
+        strengths = ([float(table["strength"][i]) for i in keep] if "strength" in table.colnames
+                     else None)
+        found = find_shift(spectrum, sel["predicted"][keep], [sel["cls"][i] for i in keep], win,
+                           strengths)
         f = _shift_factor(s_unit, found.velocity.to_value(_KMS))
         half = []
         for i in keep:
