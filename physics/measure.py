@@ -9,7 +9,8 @@
    (`~zline.physics.linefind.group_lines`): every line of the window in one model.  First the
    profiles are held at the found shift and width, which gives each line's S/N at its expected
    place (so a line that is not there is not found, and never a noise spike elsewhere); then the
-   detected lines get their own centres (within ``tolerance``, at least one resolution FWHM),
+   detected lines get their own centres (within ``tolerance``, at least half a resolution FWHM;
+   broad lines half their FWHM),
    lines closer than ``blend`` share one shift, and each width class shares one velocity width
    between the resolution floor and the ceiling of its kind.
 4. `~zline.physics.identify.solve_redshift` on the detected narrow lines (broad lines when the
@@ -286,8 +287,9 @@ def measure_group(spectrum, group, sel, found, tol, blend_kms):
         for k, i in enumerate(group):
             c = sel["cls"][i]
             if detected[k]:
-                rng = max(tol, fw[i] / abs(pos[i]) * _C_KMS * (0.5 if c == "broad" else 0.0),
-                          found.fwhm[c].to_value(_KMS) if c != "broad" else 0.0)
+                floor_kms = pix[i] * SAMPLING_FWHM_PIXELS / abs(pos[i]) * _C_KMS
+                rng = max(tol, 0.5 * floor_kms,
+                          0.5 * fw[i] / abs(pos[i]) * _C_KMS if c == "broad" else 0.0)
                 mode = "follow" if k in follow else "free"
                 out.append(Component(labels[k], pos[i] * s_unit, mode, sel["rest"][i],
                                      rng * _KMS, gid[c], fw[i] * s_unit, not free_width[c], c,
@@ -435,8 +437,9 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         (`DEFAULT_SETS`).  ``kind`` "absorption" lines must be absorbed, "broad" lines (and the
         permitted lines of a set named quasar) get the broad width class.
     tolerance : `~astropy.units.Quantity` ['speed']
-        Largest offset of a narrow line's fitted centre from the set's found shift (at least one
-        resolution FWHM); a centre that needs more is not measured.
+        Largest offset of a narrow line's fitted centre from the set's found shift (at least half
+        a resolution FWHM; broad lines half their FWHM); a centre that needs more is not
+        measured.
     min_strength : float
         Skip lines of the set with a smaller ``strength``.
     solve_for : {"z", "velocity"}, optional
