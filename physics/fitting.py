@@ -239,7 +239,8 @@ def _std_errors(spectrum):
     if unc is None:
         return None
     try:
-        std = unc.represent_as(StdDevUncertainty).array
+        with np.errstate(divide="ignore", invalid="ignore"):  # zero inverse variance: inf, dropped
+            std = unc.represent_as(StdDevUncertainty).array
     except (AttributeError, TypeError, ValueError) as exc:
         raise ValueError(f"fit_line: the spectrum's uncertainty of type {type(unc).__name__} "
                          f"cannot be turned into standard deviations") from exc

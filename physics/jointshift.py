@@ -55,7 +55,7 @@ def _chi2(w, factor, width=1.0):
     return float(r @ r)
 
 
-def joint_shift(windows, start_kms, scale_kms, length_axis=True, n_grid=61, min_scale=None):
+def joint_shift(windows, start_kms, scale_kms, length_axis=True, n_grid=31, min_scale=None):
     """Shift (km/s, relative to the positions ``base``) and its Delta chi^2 = 1 error.
 
     Parameters
@@ -101,10 +101,14 @@ def joint_shift(windows, start_kms, scale_kms, length_axis=True, n_grid=61, min_
     else:
         return float("nan"), float("nan"), float("nan"), scale[0]
     # refine the minimum on a fine grid between the neighbours, then the Delta chi2 = 1 crossings
-    fine = np.linspace(grid[k - 1], grid[k + 1], 41)
+    fine = np.linspace(grid[k - 1], grid[k + 1], 21)
     chif = np.array([total(v) for v in fine])
-    j = int(np.argmin(chif))
-    v0, c0 = fine[j], chif[j]
+    j = int(np.clip(np.argmin(chif), 1, fine.size - 2))
+    a, b, c = chif[j - 1], chif[j], chif[j + 1]
+    h = fine[1] - fine[0]
+    curv = a - 2 * b + c
+    v0 = fine[j] + (0.5 * h * (a - c) / curv if curv > 0 else 0.0)  # parabola through three
+    c0 = total(v0)
 
     def crossing(direction):
         lo_v, step = v0, (grid[1] - grid[0]) * direction
@@ -113,7 +117,7 @@ def joint_shift(windows, start_kms, scale_kms, length_axis=True, n_grid=61, min_
             lo_v, hi_v = hi_v, hi_v + step
             if abs(hi_v - v0) > 4 * half:
                 return float("nan")
-        for _ in range(30):
+        for _ in range(16):
             mid = 0.5 * (lo_v + hi_v)
             if total(mid) < c0 + 1.0:
                 lo_v = mid

@@ -1,10 +1,10 @@
 """Find the lines of a set near a trial shift: the first step of `zline.physics.measure`.
 
 `find_shift` slides the whole set over a search window of velocities and, at each trial shift,
-measures every line with a matched filter (a Gaussian of a trial width on the spectrum minus a
-running-median continuum, weighted by the flux errors).  The statistic is the sum over lines of
-the squared S/N of the expected sign, so the set is placed where its lines together fit best, not
-where one noise spike sits.  `search_window` states the default window and `group_lines` joins
+measures the set with a matched filter: one template of Gaussians of a trial width at the lines'
+places, weighted by their expected strengths and signs, on the spectrum minus a running-median
+continuum, weighted by the flux errors.  The set is placed where its lines together fit best,
+not where one noise spike sits or a weak line falls on a strong neighbour.  `search_window` states the default window and `group_lines` joins
 lines whose fit windows overlap, so that each fit models every line inside its window.
 """
 
@@ -110,12 +110,22 @@ def _arrays(spectrum):
     return x, y, e
 
 
-def _scan(x, y, e, pos, signs, fwhm_kms, shifts, factor_sign, pix_kms):
-    """Matched-filter S/N, shape (n_shift, n_line), of lines at ``pos`` shifted by ``shifts``."""
+def _template(x, y, e, pos, signs, weights, fwhm_kms, shifts, factor_sign, pix_kms):
+    """S/N of the whole class as one template (lines weighted by their expected strengths)."""
+    num, den = _scan(x, y, e, pos, signs, fwhm_kms, shifts, factor_sign, pix_kms, parts=True)
+    num, den = np.nan_to_num(num), np.nan_to_num(den)
+    tot = den @ (weights**2)
+    return np.where(tot > 0, (num @ weights) / np.sqrt(np.where(tot > 0, tot, 1.0)), 0.0)
+
+
+def _scan(x, y, e, pos, signs, fwhm_kms, shifts, factor_sign, pix_kms, parts=False):
+    """Matched-filter S/N, shape (n_shift, n_line), of lines at ``pos`` shifted by ``shifts``
+    (with ``parts``: the filter's numerator and denominator instead)."""
     size = int(max(15, 6 * fwhm_kms / pix_kms)) | 1
     r = y - median_filter(y, size=min(size, y.size - (1 - y.size % 2)), mode="nearest")
     w = 1.0 / e**2
     out = np.full((shifts.size, pos.size), np.nan)
+    nums, dens = np.zeros_like(out), np.zeros_like(out)
     factor = (1.0 + shifts / _C_KMS) ** factor_sign
     for i, p in enumerate(pos):
         sig = abs(p) * fwhm_kms / _C_KMS / 2.3548200450309493
@@ -130,10 +140,11 @@ def _scan(x, y, e, pos, signs, fwhm_kms, shifts, factor_sign, pix_kms):
         den = (g**2) @ w[k]
         ok = den > 0
         out[ok, i] = signs[i] * num[ok] / np.sqrt(den[ok])
-    return out
+        nums[:, i], dens[:, i] = signs[i] * num, den
+    return (nums, dens) if parts else out
 
 
-def find_shift(spectrum, predicted, classes, window=None):
+def find_shift(spectrum, predicted, classes, window=None, strengths=None):
     """Shift of the whole line set that its lines together support best.
 
     Parameters
@@ -146,6 +157,9 @@ def find_shift(spectrum, predicted, classes, window=None):
         `line_class` of each line.
     window : `~astropy.units.Quantity` ['speed'], optional
         Search half-window; default `search_window`.
+    strengths : sequence of float, optional
+        Expected relative strengths: the lines of a class form one template weighted by them
+        (so a weak line cannot place the set on a strong neighbour); default all equal.
 
     Returns
     -------
@@ -155,6 +169,9 @@ def find_shift(spectrum, predicted, classes, window=None):
     pos = np.asarray(predicted.value, dtype=float)
     classes = np.asarray(classes)
     signs = np.array([KINDS[c] for c in classes], dtype=float)
+    wts = np.ones(pos.size) if strengths is None else np.asarray(strengths, dtype=float)
+    wts = np.where(np.isfinite(wts) & (wts > 0), wts, np.nanmin(wts[wts > 0]) if np.any(
+        wts > 0) else 1.0)
     win = (search_window(spectrum, predicted) if window is None else window).to_value(_KMS)
     x, y, e = _arrays(spectrum)
     res_kms, pix_kms = _velocity_pixel(spectrum, u.Quantity(np.median(pos), predicted.unit))
@@ -170,10 +187,12 @@ def find_shift(spectrum, predicted, classes, window=None):
             step = max(min(0.25 * pix_kms, fw / 8.0), 1e-3)
             n = int(np.ceil(win / step))
             shifts = np.linspace(-n * step, n * step, 2 * n + 1)
-            snr = _scan(x, y, e, pos[sel], signs[sel], fw, shifts, factor_sign, pix_kms)
-            stat = np.nansum(np.clip(snr, 0, None) ** 2, axis=1)
+            stat = _template(x, y, e, pos[sel], signs[sel], wts[sel], fw, shifts, factor_sign,
+                             pix_kms)
             j = int(np.argmax(stat))
-            peak = float(np.nanmax(snr[j])) if np.isfinite(snr[j]).any() else 0.0
+            snr = _scan(x, y, e, pos[sel], signs[sel], fw, shifts[j:j + 1], factor_sign,
+                        pix_kms)[0]
+            peak = float(np.nanmax(snr)) if np.isfinite(snr).any() else 0.0
             if cls not in results or stat[j] > results[cls][0]:
                 results[cls] = (float(stat[j]), float(shifts[j]), peak >= DETECTION_SNR)
                 fwhms[cls] = fw * _KMS
@@ -191,9 +210,8 @@ def find_shift(spectrum, predicted, classes, window=None):
             sel = classes == c_name
             grid = fwhms[c_name].value * 1.06 ** np.arange(-8, 9)
             grid = grid[grid >= res_kms * (1 - 1e-9)]
-            stats = [np.nansum(np.clip(_scan(x, y, e, pos[sel], signs[sel], w, np.array([v]),
-                                             factor_sign, pix_kms), 0, None) ** 2)
-                     for w in grid]
+            stats = [_template(x, y, e, pos[sel], signs[sel], wts[sel], w, np.array([v]),
+                               factor_sign, pix_kms)[0] for w in grid]
             fwhms[c_name] = float(grid[int(np.argmax(stats))]) * _KMS
     snr_all = np.full(pos.size, np.nan)
     for c_name in set(classes):

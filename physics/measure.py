@@ -9,7 +9,8 @@
    (`~zline.physics.linefind.group_lines`): every line of the window in one model.  First the
    profiles are held at the found shift and width, which gives each line's S/N at its expected
    place (so a line that is not there is not found, and never a noise spike elsewhere); then the
-   detected lines get their own centres (within ``tolerance``, at least one resolution FWHM),
+   detected lines get their own centres (within ``tolerance``, at least half a resolution FWHM;
+   broad lines half their FWHM),
    lines closer than ``blend`` share one shift, and each width class shares one velocity width
    between the resolution floor and the ceiling of its kind.
 4. `~zline.physics.identify.solve_redshift` on the detected narrow lines (broad lines when the
@@ -47,7 +48,7 @@ BLEND_DISTANCE = 500 * _KMS
 FIT_HALF_WINDOW = 4.0
 #: A width class of a group fits its own FWHM only when one of its detected lines has at least
 #: this S/N; otherwise the FWHM found for the whole set is held.
-WIDTH_FREE_SNR = 10.0
+WIDTH_FREE_SNR = 5.0
 
 #: Physical type of the spectral axis -> default line set.
 DEFAULT_SETS = {"length": "galaxy-emission", "wavenumber": "galaxy-emission",
@@ -292,8 +293,9 @@ def measure_group(spectrum, group, sel, found, tol, blend_kms):
         for k, i in enumerate(group):
             c = sel["cls"][i]
             if detected[k]:
-                rng = max(tol, fw[i] / abs(pos[i]) * _C_KMS * (0.5 if c == "broad" else 0.0),
-                          found.fwhm[c].to_value(_KMS) if c != "broad" else 0.0)
+                floor_kms = pix[i] * SAMPLING_FWHM_PIXELS / abs(pos[i]) * _C_KMS
+                rng = max(tol, 0.5 * floor_kms,
+                          0.5 * fw[i] / abs(pos[i]) * _C_KMS if c == "broad" else 0.0)
                 mode = "follow" if k in follow else "free"
                 out.append(Component(labels[k], pos[i] * s_unit, mode, sel["rest"][i],
                                      rng * _KMS, gid[c], fw[i] * s_unit, not free_width[c], c,
@@ -441,8 +443,9 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         (`DEFAULT_SETS`).  ``kind`` "absorption" lines must be absorbed, "broad" lines (and the
         permitted lines of a set named quasar) get the broad width class.
     tolerance : `~astropy.units.Quantity` ['speed']
-        Largest offset of a narrow line's fitted centre from the set's found shift (at least one
-        resolution FWHM); a centre that needs more is not measured.
+        Largest offset of a narrow line's fitted centre from the set's found shift (at least half
+        a resolution FWHM; broad lines half their FWHM); a centre that needs more is not
+        measured.
     min_strength : float
         Skip lines of the set with a smaller ``strength``.
     solve_for : {"z", "velocity"}, optional
@@ -479,7 +482,10 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
     s_unit = u.Quantity(spectrum.spectral_axis).unit
     rows, search = [], {}
     if keep:
-        found = find_shift(spectrum, sel["predicted"][keep], [sel["cls"][i] for i in keep], win)
+        strengths = ([float(table["strength"][i]) for i in keep] if "strength" in table.colnames
+                     else None)
+        found = find_shift(spectrum, sel["predicted"][keep], [sel["cls"][i] for i in keep], win,
+                           strengths)
         f = _shift_factor(s_unit, found.velocity.to_value(_KMS))
         half = []
         for i in keep:

@@ -89,12 +89,6 @@ def case_b_ratio(line="Halpha", temperature=10000 * u.K, density=100 * u.cm**-3,
         One of `CASE_B_LINES`.
     temperature : `~astropy.units.Quantity` ['temperature']
         Electron temperature, 5000 ... 20 000 K (the table's range; linear in log T between).
-
-    Examples
-    --------
-    >>> import astropy.units as u
-    >>> round(case_b_ratio("Halpha", 10000 * u.K, 1e4 * u.cm**-3), 4)
-    2.8468
     density : `~astropy.units.Quantity` ['number density']
         Electron density, 1e2 ... 1e6 cm^-3 (linear in log n_e between the tabulated decades).
     case : str
@@ -104,6 +98,12 @@ def case_b_ratio(line="Halpha", temperature=10000 * u.K, density=100 * u.cm**-3,
     ------
     ValueError
         Temperature, density, case or line outside what the table holds.
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> round(case_b_ratio("Halpha", 10000 * u.K, 1e4 * u.cm**-3), 4)
+    2.8468
     """
     if case not in _CASES:
         raise ValueError(f"case_b_ratio: case {case!r} is not tabulated; options: "

@@ -353,3 +353,87 @@ def test_blend_upper_limits_for_absent_components():
     assert 3 * by["N2a"].upper_limit_sigma.value == pytest.approx(
         3 * scale / math.hypot(1, 2.94), rel=0.1)
     assert by["N2a"].upper_limit.value >= 3 * by["N2a"].upper_limit_sigma.value
+
+
+# ------------------------------------------------------------------------------------------
+# the pipeline's small parts: covariance, resolution floor, fit_group
+
+
+def test_covariance_proper_inverse_and_unconstrained():
+    from zline.physics._fitmodel import covariance
+
+    rng = np.random.default_rng(4)
+    jac = rng.normal(size=(50, 3))
+    cov, bad = covariance(jac)
+    assert bad is None
+    np.testing.assert_allclose(cov, np.linalg.inv(jac.T @ jac), rtol=1e-10)
+    # a parameter the data do not constrain (a column that copies another): flagged, no cov
+    degenerate = np.column_stack([jac, jac[:, 1]])
+    cov, bad = covariance(degenerate)
+    assert cov is None and bad in (1, 3)
+    # a held parameter gets zero variance, the rest the inverse of the others
+    cov, bad = covariance(degenerate, held=np.array([False, False, False, True]))
+    assert bad is None and cov[3, 3] == 0
+    np.testing.assert_allclose(cov[:3, :3], np.linalg.inv(jac.T @ jac), rtol=1e-10)
+
+
+def test_resolution_floor_from_meta_or_sampling():
+    from zline.physics.fitting import SAMPLING_FWHM_PIXELS, resolution_fwhm
+
+    sp = make_spectrum(X, 5 + gauss(X, 6563.0, 2.0, 50.0), 0.1)
+    fw, source = resolution_fwhm(sp, 6563 * u.AA)
+    assert source == "sampling" and fw.value == pytest.approx(SAMPLING_FWHM_PIXELS * 0.5)
+    sp.meta["zline"] = {"resolution": 2000.0}
+    fw, source = resolution_fwhm(sp, 6563 * u.AA)
+    assert source == "resolving power" and fw.value == pytest.approx(6563 / 2000)
+    sp.meta["zline"] = {"resolution_fwhm": 150 * u.km / u.s}
+    fw, source = resolution_fwhm(sp, 6563 * u.AA)
+    assert source == "resolution FWHM" and fw.value == pytest.approx(6563 * 150 / 299792.458)
+
+
+def test_width_never_below_the_floor():
+    # a one-pixel spike: the width stops on the floor (held there: unresolved) instead of
+    # collapsing below a pixel, so its centre error stays a fair fraction of a pixel (0.5 A)
+    y = np.full(X.size, 5.0)
+    y[120] += 3.0
+    fit = fit_line(make_spectrum(X, y, 0.5), 6560 * u.AA, fwhm=3 * u.AA, kind="emission")
+    assert fit.fwhm.value == pytest.approx(fit.fwhm_floor.value, rel=1e-6)
+    assert "resolution floor" in fit.reason
+    assert fit.center_err.value > 0.1 * 0.5
+
+
+def test_width_ceiling_by_kind():
+    from zline.physics.fitting import WIDTH_CEILING
+
+    # a very broad bump: an emission line's ceiling (1500 km/s) stops it, a broad line fits it
+    x = np.linspace(6300.0, 6800.0, 1001)
+    y = 1 + gauss(x, 6563.0, 6563 * 4000 / 2.3548 / 299792.458, 400.0)
+    sp = make_spectrum(x, y, 0.01)
+    narrow = fit_line(sp, 6563 * u.AA, kind="emission", fwhm=20 * u.AA)
+    broad = fit_line(sp, 6563 * u.AA, kind="broad", fwhm=40 * u.AA)
+    assert not narrow.measured and "ceiling" in narrow.reason
+    assert narrow.fwhm_kms <= WIDTH_CEILING["emission"] * 1.001
+    assert broad.measured and broad.fwhm_kms.value == pytest.approx(4000, rel=1e-3)
+
+
+def test_fit_group_follow_and_fixed_centres():
+    from zline.physics.fitgroup import fit_group
+    from zline.physics.fitting import Component
+
+    x = np.linspace(6700.0, 6760.0, 241)
+    mu1, mu2 = 6718.29 * 1.001, 6732.67 * 1.001
+    y = 1 + gauss(x, mu1, 1.2, 20.0) + gauss(x, mu2, 1.2 * mu2 / mu1, 14.0)
+    sp = make_spectrum(x, y, 0.01)
+    comps = [Component("a", 6718.29 * 1.0008 * u.AA, "free", 6718.29 * u.AA, 100 * u.km / u.s,
+                       0, 2.8 * u.AA, kind="emission"),
+             Component("b", 6732.67 * 1.0008 * u.AA, "follow", 6732.67 * u.AA, None, 0,
+                       2.8 * u.AA, kind="emission", follows=0)]
+    a, b = fit_group(sp, comps, [6700, 6760] * u.AA)
+    assert a.center.value == pytest.approx(mu1, abs=1e-4)
+    assert b.center.value / a.center.value == pytest.approx(6732.67 / 6718.29, rel=1e-12)
+    assert b.flux.value == pytest.approx(14.0, rel=1e-4)
+    fixed = [Component("a", mu1 * u.AA, "fixed", None, None, 0, 2.8257 * u.AA, True, "emission")]
+    (f,) = fit_group(sp, fixed, [6700, 6728] * u.AA)
+    assert f.message == "linear least squares" and f.center.value == mu1
+    with pytest.raises(ValueError, match="follows 5, which is not the index"):
+        fit_group(sp, [Component("a", mu1 * u.AA, "follow", follows=5)], [6700, 6760] * u.AA)
