@@ -140,9 +140,10 @@ def run(args):
         print(f"# {args.file}: {searched} ({result.medium}), {span}; {verdict}, confidence "
               f"{result.confidence:.2f} that rank 1 is right")
         print(format_text(result))
-        for m in result.masked:
-            print(f"zline scan: masked {m['lo']:.6g}-{m['hi']:.6g} {m['unit']}: {m['reason']}",
-                  file=sys.stderr)
+        if result.masked:  # one line: the regions the search left out (--no-sky-mask keeps them)
+            spans = ", ".join(f"{m['lo']:.6g}-{m['hi']:.6g} ({m['reason']})" for m in result.masked)
+            print(f"zline scan: masked {len(result.masked)} sky/telluric region(s) "
+                  f"[{result.masked[0]['unit']}]: {spans}", file=sys.stderr)
         for note in result.notes:
             print(f"zline scan: note: {note}", file=sys.stderr)
     return 0
