@@ -392,7 +392,7 @@ def fit_group(spectrum, components, window, *, continuum_order=1, profile="gauss
         flux=fl_v[k] * fl_unit, flux_err=fl_e[k] * fl_unit,
         fwhm=fw_v[k] * sunit, fwhm_err=fw_e[k] * sunit,
         fwhm_kms=fk_v[k] * u.km / u.s, fwhm_kms_err=fk_e[k] * u.km / u.s,
-        ew=ew_v[k] * sunit, ew_err=ew_e[k] * sunit, snr=float(snr[k]),
+        ew=-ew_v[k] * sunit, ew_err=ew_e[k] * sunit, snr=float(snr[k]),
         continuum=c_v[k] * fscale * funit, continuum_err=c_e[k] * fscale * funit,
         chi2_dof=chi2_dof, dof=int(dof), success=bool(res.success), message=str(res.message),
         upper_limit=upper[k], upper_limit_sigma=upper_sd[k], label=comps[k]["label"],

@@ -10,10 +10,9 @@ Conventions
 -----------
 * ``flux`` is the integral of (data - continuum) over the spectral axis in the spectrum's own
   spectral unit: positive for emission, negative for absorption.
-* ``ew`` (equivalent width) is ``flux / continuum(center)`` in the spectral unit: **positive for
-  emission, negative for absorption**.  This is the opposite sign to
-  `specutils.analysis.equivalent_width`, which returns ``integral(1 - F/C)`` (negative for
-  emission).
+* ``ew`` (equivalent width) is ``-flux / continuum(center)`` in the spectral unit, the usual
+  convention ``integral(1 - F/C)``: **positive for absorption, negative for emission**, the same
+  sign as `specutils.analysis.equivalent_width`.
 * ``fwhm_kms`` is ``c * fwhm / center`` (the same to first order for wavelength and frequency axes).
 * Uncertainties come from the covariance of the fit: the inverse of J^T J over the full
   Jacobian (`zline.physics._fitmodel.covariance`), scaled by the flux errors of the spectrum.

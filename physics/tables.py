@@ -205,7 +205,7 @@ def line_table_for_paper(locks_or_fits, solution=None, spectrum=None, settings=N
     descriptions = {
         "rest": "rest position", "observed": "fitted observed centre",
         "observed_err": "1-sigma error of observed", "flux": "integrated line flux",
-        "ew": "equivalent width (positive for emission)", "fwhm_kms": "FWHM as a velocity",
+        "ew": "equivalent width (positive for absorption, negative for emission)", "fwhm_kms": "FWHM as a velocity",
         "snr": "flux / flux_err", "residual_kms": "velocity residual from the solution",
         "upper_limit": "True: not detected (snr < 3)", "flux_limit": "3-sigma flux upper limit",
     }

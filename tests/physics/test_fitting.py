@@ -123,7 +123,7 @@ def test_against_specutils_analysis_noiseless():
                              rtol=1e-4)
     ew_specutils = equivalent_width(spec, continuum=cont * FUNIT, regions=region)
     assert ew_specutils < 0
-    assert_quantity_allclose(fit.ew, -ew_specutils, rtol=1e-4)
+    assert_quantity_allclose(fit.ew, ew_specutils, rtol=1e-4)
     assert_quantity_allclose(fit.continuum, cont * FUNIT, rtol=1e-8)
     # FWHM of a Gaussian: 2 sqrt(2 ln 2) sigma (common practice)
     assert_quantity_allclose(fit.fwhm, 2 * math.sqrt(2 * math.log(2)) * sigma * u.AA, rtol=1e-6)
@@ -145,11 +145,11 @@ def test_voigt_fwhm_matches_astropy():
     assert fit.center.value == pytest.approx(6563.0, abs=1e-4)
 
 
-def test_absorption_negative_flux_and_ew():
+def test_absorption_negative_flux_positive_ew():
     y = 10 - gauss(X, 6563.0, 2.0, 30.0)
     fit = fit_line(make_spectrum(X, y, 0.05), 6563 * u.AA)
     assert fit.flux.value == pytest.approx(-30.0, rel=1e-4)
-    assert fit.ew.value == pytest.approx(-3.0, rel=1e-4)
+    assert fit.ew.value == pytest.approx(3.0, rel=1e-4)  # absorption: W > 0 (common practice)
 
 
 def test_frequency_axis():
