@@ -84,7 +84,7 @@ class LineFit:
     fwhm_kms, fwhm_kms_err : `~astropy.units.Quantity` ['speed']
         FWHM as a velocity, ``c * fwhm / center``.
     ew, ew_err : `~astropy.units.Quantity`
-        Equivalent width ``flux / continuum(center)``; positive for emission (opposite to specutils).
+        Equivalent width ``-flux / continuum(center)``; positive for absorption (as specutils).
     snr : float
         ``flux / flux_err``.
     continuum, continuum_err : `~astropy.units.Quantity`
