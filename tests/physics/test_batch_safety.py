@@ -121,9 +121,15 @@ def test_locked_catalogue_refuses_at_once(spectra, tmp_path):
 
 
 _RUN = textwrap.dedent("""
-    import sys
+    import os, sys, time
     from zline.physics.batch import measure_survey
-    measure_survey(sys.argv[1], sys.argv[2], workers=int(sys.argv[3]))
+
+    def progress(done, total):  # after its first record, the run waits until the test says go
+        if done >= 1 and len(sys.argv) > 4:
+            while not os.path.exists(sys.argv[4]):
+                time.sleep(0.05)
+
+    measure_survey(sys.argv[1], sys.argv[2], workers=int(sys.argv[3]), progress=progress)
 """)
 
 
@@ -142,9 +148,10 @@ def _wait(condition, timeout, what):
 
 
 def test_two_runs_on_one_catalogue(tmp_path):
-    truth = write_synthetic_spectra(tmp_path / "s", 24, seed=33, npix=20000)
+    truth = write_synthetic_spectra(tmp_path / "s", 6, seed=33, npix=3000)
     cat = str(tmp_path / "cat.ecsv")
-    first = subprocess.Popen([sys.executable, "-c", _RUN, str(tmp_path / "s"), cat, "1"],
+    go = tmp_path / "go"
+    first = subprocess.Popen([sys.executable, "-c", _RUN, str(tmp_path / "s"), cat, "1", str(go)],
                              stderr=subprocess.PIPE, text=True)
     try:
         _wait(lambda: _records(parts_directory(cat)), 180, "the first run's first record")
@@ -152,6 +159,7 @@ def test_two_runs_on_one_catalogue(tmp_path):
                                  "-o", cat, "--workers", "1"], capture_output=True, text=True,
                                 timeout=180)
         assert first.poll() is None, "the first run ended too soon for this test"
+        go.touch()  # the first run goes on to the end
         assert second.returncode == 1
         assert "is being written by another run (zline batch, pid " f"{first.pid}" in second.stderr
         assert first.wait(timeout=600) == 0, first.stderr.read()
