@@ -8,9 +8,9 @@ import warnings
 import numpy as np
 import astropy.units as u
 from astropy.io import fits
-from astropy.nddata import InverseVariance, StdDevUncertainty, VarianceUncertainty
 
-__all__ = ["SpectrumFormatError", "Ctx", "MEDIA", "UNCERTAINTY_TYPES", "HEADER_FACTS",
+__all__ = ["SpectrumFormatError", "Ctx", "MEDIA", "UNCERTAINTY_TYPES", "UNCERTAINTY_KINDS",
+           "uncertainty_types", "uncertainty_kind", "HEADER_FACTS",
            "MEDIUM_KEYWORDS", "FLAG_CODES",
            "FLUX_EXTNAMES", "ERR_EXTNAMES", "MASK_EXTNAMES", "parse_unit", "is_spectral",
            "choose", "hdu_label", "has_image", "is_table", "hdu_list_text", "float_key",
@@ -20,9 +20,31 @@ __all__ = ["SpectrumFormatError", "Ctx", "MEDIA", "UNCERTAINTY_TYPES", "HEADER_F
 #: Accepted values of ``medium=``.
 MEDIA = {"vacuum": "wavelengths measured in vacuum", "air": "wavelengths measured in standard air"}
 
-#: Accepted values of ``uncertainty_type=`` and the astropy class each one builds.
-UNCERTAINTY_TYPES = {"stdev": StdDevUncertainty, "variance": VarianceUncertainty,
-                     "ivar": InverseVariance}
+#: Accepted values of ``uncertainty_type=`` and the power of the flux unit each one carries.
+UNCERTAINTY_KINDS = {"stdev": 1, "variance": 2, "ivar": -2}
+
+
+def uncertainty_types():
+    """{kind: astropy.nddata class} (imported here, not at start-up: astropy.nddata is slow)."""
+    from astropy.nddata import InverseVariance, StdDevUncertainty, VarianceUncertainty
+
+    return {"stdev": StdDevUncertainty, "variance": VarianceUncertainty, "ivar": InverseVariance}
+
+
+def uncertainty_kind(uncertainty):
+    """The key of `UNCERTAINTY_TYPES` for an astropy uncertainty object, or None."""
+    if uncertainty is None:
+        return None
+    return next((k for k, cls in uncertainty_types().items() if isinstance(uncertainty, cls)),
+                None)
+
+
+def __getattr__(name):
+    # ``UNCERTAINTY_TYPES`` (accepted ``uncertainty_type=`` values -> astropy class) stays
+    # public but imports astropy.nddata only when asked for.
+    if name == "UNCERTAINTY_TYPES":
+        return uncertainty_types()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 #: Header keywords copied into ``meta["zline"]["header"]`` when present.
 HEADER_FACTS = ("OBJECT", "DATE-OBS", "MJD-OBS", "OBSGEO-X", "OBSGEO-Y", "OBSGEO-Z", "SITELAT",

@@ -1,20 +1,19 @@
-"""Assemble the `specutils.Spectrum` from what a layout read: ascending axis, plausibility,
-flux unit, uncertainty, mask, medium and the ``meta["zline"]`` record."""
+"""Assemble a `LightSpectrum` from what a layout read: ascending axis, plausibility, flux unit,
+uncertainty, mask, medium and the ``meta["zline"]`` record (`light.to_spectrum` makes the
+`specutils.Spectrum` of it)."""
 
 import numpy as np
 import astropy.units as u
-from astropy.nddata import InverseVariance, StdDevUncertainty, VarianceUncertainty
 
-from ._base import UNCERTAINTY_TYPES, parse_unit
+from ._base import UNCERTAINTY_KINDS, parse_unit
+from .light import LightSpectrum
 from ._plausible import check_axis
 
 __all__ = ["build", "decide_medium"]
 
 
 def build(out, ctx, opts, header=None, facts=None):
-    """Assemble the `specutils.Spectrum` from the pieces a layout read (see `registry`)."""
-    from specutils import Spectrum
-
+    """Assemble the `LightSpectrum` from the pieces a layout read (see `registry`)."""
     axis = out["axis"]
     flux = np.asarray(out["flux"], dtype=float)
     n = flux.size
@@ -71,7 +70,7 @@ def build(out, ctx, opts, header=None, facts=None):
     mask = ~finite
     if out["mask"] is not None:
         mask |= np.asarray(out["mask"], dtype=bool)
-    uncertainty = None
+    unc = None
     kind = out["unc_kind"]
     if out["unc"] is not None:
         if opts["uncertainty_type"] is not None:
@@ -79,12 +78,9 @@ def build(out, ctx, opts, header=None, facts=None):
         unc = np.asarray(out["unc"], dtype=float)
         bad = ~np.isfinite(unc) | (unc <= 0)
         mask |= bad
-        uncertainty = UNCERTAINTY_TYPES[kind](unc)
 
     flux_q = flux * funit
-    if uncertainty is not None:
-        power = {"stdev": 1, "variance": 2, "ivar": -2}[kind]
-        uncertainty = UNCERTAINTY_TYPES[kind](unc, unit=funit ** power)
+    unc_unit = funit ** UNCERTAINTY_KINDS[kind] if unc is not None else None
     medium, assumed = decide_medium(out["kind"], out["medium"], opts["medium"], ctx)
     extra = out["extra"]
 
@@ -97,8 +93,8 @@ def build(out, ctx, opts, header=None, facts=None):
         if axis.value[0] > axis.value[-1]:
             idx = slice(None, None, -1)
             axis, flux_q, mask = axis[idx], flux_q[idx], mask[idx]
-            if uncertainty is not None:
-                uncertainty = type(uncertainty)(uncertainty.array[idx], unit=uncertainty.unit)
+            if unc is not None:
+                unc = unc[idx]
             reversed_ = not reversed_
     if target_funit is not None:
         try:
@@ -106,24 +102,23 @@ def build(out, ctx, opts, header=None, facts=None):
         except u.UnitsError:
             ctx.fail(f"flux_unit={target_funit} cannot be reached from the file's flux unit "
                      f"{funit}")
-        if uncertainty is not None:
+        if unc is not None:
             # the conversion is a per-pixel factor (flux density conversions are linear)
             ratio = (np.ones(flux_q.shape) * funit).to_value(
                 target_funit, equivalencies=u.spectral_density(axis))
             if kind == "stdev":
-                uncertainty = StdDevUncertainty(uncertainty.array * np.abs(ratio), unit=target_funit)
+                unc = unc * np.abs(ratio)
             elif kind == "variance":
-                uncertainty = VarianceUncertainty(uncertainty.array * ratio ** 2,
-                                                  unit=target_funit ** 2)
+                unc = unc * ratio ** 2
             else:
                 with np.errstate(divide="ignore"):
-                    uncertainty = InverseVariance(uncertainty.array / ratio ** 2,
-                                                  unit=target_funit ** -2)
+                    unc = unc / ratio ** 2
+            unc_unit = target_funit ** UNCERTAINTY_KINDS[kind]
         flux_q = newf
 
     zmeta = dict(file=ctx.name, hdu=ctx.hdu_index, hdu_name=ctx.hdu_name, layout=out["layout"],
                  medium=medium,
-                 medium_assumed=assumed, uncertainty=kind if uncertainty is not None else None,
+                 medium_assumed=assumed, uncertainty=kind if unc is not None else None,
                  assumptions=list(ctx.assumptions), flags=[dict(f) for f in ctx.flags],
                  notes=list(ctx.notes), reversed=reversed_,
                  header=dict(facts or {}))
@@ -134,16 +129,10 @@ def build(out, ctx, opts, header=None, facts=None):
     meta = {"zline": zmeta}
     if header is not None:
         meta["header"] = header
-    kwargs = {}
-    if "rest_value" in extra:
-        kwargs["rest_value"] = extra["rest_value"]
-        kwargs["velocity_convention"] = extra.get("velocity_convention", "radio")
-    try:
-        return Spectrum(flux=flux_q, spectral_axis=axis, uncertainty=uncertainty, mask=mask,
-                        meta=meta, **kwargs)
-    except Exception:  # damaged data: said in plain words below
-        ctx.fail("specutils could not build a spectrum from the data read (axis, flux, "
-                 "uncertainty and mask); check the file's shapes and values")
+    return LightSpectrum(axis, flux_q, uncertainty=unc, uncertainty_kind=kind,
+                         uncertainty_unit=unc_unit, mask=mask, meta=meta,
+                         rest_value=extra.get("rest_value"),
+                         velocity_convention=extra.get("velocity_convention"))
 
 
 def decide_medium(kind, stated, override, ctx):

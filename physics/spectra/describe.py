@@ -4,13 +4,19 @@ import math
 
 import numpy as np
 
-from ._base import UNCERTAINTY_TYPES, SpectrumFormatError
+from ._base import SpectrumFormatError, uncertainty_kind
+from .light import LightSpectrum
 
 __all__ = ["describe_spectrum"]
 
 
 def describe_spectrum(spectrum):
     """Summarise a spectrum as a JSON-ready dict (the ``zline info`` keys).
+
+    Parameters
+    ----------
+    spectrum : `specutils.Spectrum` or `LightSpectrum`
+        What `read_spectrum` or `read_light` returned (the summary is the same for both).
 
     Returns
     -------
@@ -21,15 +27,17 @@ def describe_spectrum(spectrum):
         the list of ``{"code", "message"}`` of every guess (see `FLAG_CODES`).  Numbers that are
         not finite are given as None, so the dict is valid JSON.
     """
-    from specutils import Spectrum
+    if isinstance(spectrum, LightSpectrum):
+        ukind = spectrum.uncertainty_kind
+    else:
+        from specutils import Spectrum
 
-    if not isinstance(spectrum, Spectrum):
-        raise SpectrumFormatError(f"describe_spectrum expects a specutils Spectrum; got "
-                                  f"{type(spectrum).__name__}")
+        if not isinstance(spectrum, Spectrum):
+            raise SpectrumFormatError(f"describe_spectrum expects a specutils Spectrum or a "
+                                      f"LightSpectrum; got {type(spectrum).__name__}")
+        ukind = uncertainty_kind(spectrum.uncertainty)
     z = spectrum.meta.get("zline", {}) if hasattr(spectrum.meta, "get") else {}
     axis = spectrum.spectral_axis
-    unc = spectrum.uncertainty
-    ukind = next((k for k, cls in UNCERTAINTY_TYPES.items() if isinstance(unc, cls)), None)
     mask = spectrum.mask
     info = dict(
         file=z.get("file"), hdu=z.get("hdu"), hdu_name=z.get("hdu_name"), layout=z.get("layout", "spectrum"),

@@ -1,22 +1,25 @@
 """`read_spectrum`: from a path, bytes, an HDU list, arrays or a Spectrum to a checked
-`specutils.Spectrum` with every assumption recorded."""
+`specutils.Spectrum` with every assumption recorded; `read_light`: the same reading into a
+`LightSpectrum`, without importing specutils (``zline info`` starts faster)."""
 
 import copy
 import io
 import os
+import sys
 import warnings
 
 import numpy as np
 import astropy.units as u
 from astropy.io import fits
 
-from ._base import (MEDIA, UNCERTAINTY_TYPES, Ctx, SpectrumFormatError, apply_medium_keywords,
-                    header_facts, is_spectral)
+from ._base import (MEDIA, UNCERTAINTY_KINDS, Ctx, SpectrumFormatError, apply_medium_keywords,
+                    header_facts, is_spectral, uncertainty_kind, uncertainty_types)
 from ._build import build, decide_medium
 from ._fitscheck import check_structure, record_warnings
+from .light import to_spectrum
 from .registry import read_hdu, select_hdu
 
-__all__ = ["read_spectrum", "spectrum_from_arrays"]
+__all__ = ["read_spectrum", "read_light", "spectrum_from_arrays"]
 
 
 
@@ -64,40 +67,76 @@ def read_spectrum(source, hdu=None, medium=None, row=None, column=None, uncertai
     """
     from specutils import Spectrum
 
+    opts = _options(hdu, medium, row, column, uncertainty_type, spectral_unit, flux_unit)
+    if isinstance(source, Spectrum):
+        return _from_spectrum(source, opts)
+    return _read(source, opts, to_spectrum)
+
+
+def read_light(source, hdu=None, medium=None, row=None, column=None, uncertainty_type=None,
+               spectral_unit=None, flux_unit=None):
+    """Read a 1D spectrum as `read_spectrum` does, into a `LightSpectrum` (no specutils import).
+
+    The parameters, checks, errors and ``meta`` are those of `read_spectrum` (a specutils
+    ``Spectrum`` is not accepted as ``source``); `describe_spectrum` takes the result.
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> light = read_light(([6562.0, 6563.0, 6564.0] * u.AA, [1.0, 3.0, 1.0] * u.Jy))
+    >>> light.meta["zline"]["layout"], light.meta["zline"]["medium"]
+    ('arrays', 'vacuum')
+    """
+    opts = _options(hdu, medium, row, column, uncertainty_type, spectral_unit, flux_unit)
+    specutils = sys.modules.get("specutils")
+    if specutils is not None and isinstance(source, specutils.Spectrum):
+        raise SpectrumFormatError("read_light reads files, bytes, HDU lists and arrays; the "
+                                  "source is already a specutils Spectrum (use read_spectrum)")
+    return _read(source, opts, None)
+
+
+def _options(hdu, medium, row, column, uncertainty_type, spectral_unit, flux_unit):
     if medium is not None and medium not in MEDIA:
         raise SpectrumFormatError(f"medium={medium!r} is not accepted; expected one of "
                                   f"{sorted(MEDIA)} or None")
-    if uncertainty_type is not None and uncertainty_type not in UNCERTAINTY_TYPES:
+    if uncertainty_type is not None and uncertainty_type not in UNCERTAINTY_KINDS:
         raise SpectrumFormatError(f"uncertainty_type={uncertainty_type!r} is not accepted; "
-                                  f"expected one of {sorted(UNCERTAINTY_TYPES)} or None")
-    opts = dict(hdu=hdu, medium=medium, row=row, column=column,
+                                  f"expected one of {sorted(UNCERTAINTY_KINDS)} or None")
+    return dict(hdu=hdu, medium=medium, row=row, column=column,
                 uncertainty_type=uncertainty_type,
                 spectral_unit=_user_unit(spectral_unit, "spectral_unit"),
                 flux_unit=_user_unit(flux_unit, "flux_unit"))
 
-    if isinstance(source, Spectrum):
-        return _from_spectrum(source, opts)
+
+def _read(source, opts, finish):
+    """The spectrum in ``source``: a `LightSpectrum`, or ``finish(light, ctx)`` of it."""
+    def done(light, ctx):
+        return light if finish is None else finish(light, ctx)
+
+    medium, uncertainty_type = opts["medium"], opts["uncertainty_type"]
     if isinstance(source, fits.HDUList):
         ctx = Ctx(source.filename() or "<HDUList>")
-        return _guard(ctx, lambda: _from_hdulist(source, ctx, opts))
+        return _guard(ctx, lambda: done(_from_hdulist(source, ctx, opts), ctx))
     if isinstance(source, (tuple, list)):
         if not 2 <= len(source) <= 3:
             raise SpectrumFormatError(f"a tuple source must be (spectral_axis, flux[, uncertainty]);"
                                       f" got {len(source)} items")
-        return spectrum_from_arrays(*source, medium=medium, uncertainty_type=uncertainty_type)
+        return done(*_light_from_arrays(*source, medium=medium,
+                                        uncertainty_type=uncertainty_type))
     if isinstance(source, dict):
         keys = {"spectral_axis", "flux", "uncertainty", "mask"}
         if not {"spectral_axis", "flux"} <= set(source) <= keys:
             raise SpectrumFormatError(f"a dict source needs the keys 'spectral_axis' and 'flux' "
                                       f"(optional 'uncertainty', 'mask'); got {sorted(source)}")
-        return spectrum_from_arrays(**source, medium=medium, uncertainty_type=uncertainty_type)
+        return done(*_light_from_arrays(**source, medium=medium,
+                                        uncertainty_type=uncertainty_type))
 
     if isinstance(source, (bytes, bytearray, memoryview)):
         ctx = Ctx("<uploaded bytes>")
         data = bytes(source)
         if not data:
             ctx.fail("the upload is empty (0 bytes); expected the contents of a FITS file")
-        return _guard(ctx, lambda: _open_and_read(io.BytesIO(data), ctx, opts))
+        return _guard(ctx, lambda: done(_open_and_read(io.BytesIO(data), ctx, opts), ctx))
     if isinstance(source, (str, os.PathLike)):
         path = os.fspath(source)
         ctx = Ctx(path)
@@ -107,10 +146,10 @@ def read_spectrum(source, hdu=None, medium=None, row=None, column=None, uncertai
             ctx.fail("this is a directory; expected a FITS file")
         if os.path.getsize(path) == 0:
             ctx.fail("the file is empty (0 bytes); expected a FITS file")
-        return _guard(ctx, lambda: _open_and_read(path, ctx, opts))
+        return _guard(ctx, lambda: done(_open_and_read(path, ctx, opts), ctx))
     if hasattr(source, "read"):
         ctx = Ctx(getattr(source, "name", "<file object>"))
-        return _guard(ctx, lambda: _open_and_read(source, ctx, opts))
+        return _guard(ctx, lambda: done(_open_and_read(source, ctx, opts), ctx))
     raise SpectrumFormatError(
         f"source of type {type(source).__name__} is not accepted; expected a path, bytes, an "
         f"HDUList, a specutils Spectrum, a (spectral_axis, flux[, uncertainty]) tuple or a dict")
@@ -233,8 +272,7 @@ def _from_spectrum(spec, opts):
         medium, assumed = old["medium"], old["medium_assumed"]
     else:
         medium, assumed = decide_medium(kind, stated, opts["medium"], ctx)
-    unc = spec.uncertainty
-    ukind = next((k for k, cls in UNCERTAINTY_TYPES.items() if isinstance(unc, cls)), None)
+    ukind = uncertainty_kind(spec.uncertainty)
     zmeta = dict(file=old.get("file"), hdu=old.get("hdu"), hdu_name=old.get("hdu_name"), layout=old.get("layout", "spectrum"),
                  medium=medium, medium_assumed=assumed, uncertainty=ukind,
                  assumptions=list(old.get("assumptions", [])) + ctx.assumptions,
@@ -263,6 +301,13 @@ def spectrum_from_arrays(spectral_axis, flux, uncertainty=None, mask=None, mediu
     medium : {'vacuum', 'air'}, optional
     uncertainty_type : {'stdev', 'variance', 'ivar'}, optional
     """
+    return to_spectrum(*_light_from_arrays(spectral_axis, flux, uncertainty, mask, medium,
+                                           uncertainty_type))
+
+
+def _light_from_arrays(spectral_axis, flux, uncertainty=None, mask=None, medium=None,
+                       uncertainty_type=None):
+    """(`LightSpectrum`, context) of `spectrum_from_arrays`."""
     ctx = Ctx("<arrays>")
     if not isinstance(spectral_axis, u.Quantity) or not is_spectral(spectral_axis.unit):
         ctx.fail(f"spectral_axis must be a Quantity with a spectral unit (length, frequency, "
@@ -278,13 +323,13 @@ def spectrum_from_arrays(spectral_axis, flux, uncertainty=None, mask=None, mediu
     kind = uncertainty_type or "stdev"
     unc = None
     if uncertainty is not None:
-        for k, cls in UNCERTAINTY_TYPES.items():
+        for k, cls in uncertainty_types().items():
             if isinstance(uncertainty, cls):
                 kind = uncertainty_type or k
                 uncertainty = uncertainty.quantity if uncertainty.unit is not None else \
                     uncertainty.array
                 break
-        power = {"stdev": 1, "variance": 2, "ivar": -2}[kind]
+        power = UNCERTAINTY_KINDS[kind]
         if isinstance(uncertainty, u.Quantity):
             try:
                 unc = uncertainty.to_value(flux.unit ** power)
@@ -306,5 +351,5 @@ def spectrum_from_arrays(spectral_axis, flux, uncertainty=None, mask=None, mediu
     opts = dict(medium=medium, uncertainty_type=None, spectral_unit=None, flux_unit=None)
     if f.size and flux.unit == u.dimensionless_unscaled:
         out["flux_unit_text"] = "dimensionless"
-    return build(out, ctx, opts)
+    return build(out, ctx, opts), ctx
 

@@ -72,3 +72,23 @@ def test_info_subprocess(spectrum_file, tmp_path):
     assert res.returncode != 0
     assert "trunc.fits" in res.stderr and "Traceback" not in res.stderr
     assert len(res.stderr.strip().splitlines()) == 1
+
+
+#: Modules ``zline info`` must not import: it reads a file without building a specutils Spectrum.
+HEAVY_FOR_INFO = ("specutils", "astropy.nddata", "astropy.wcs", "scipy")
+
+
+@pytest.mark.parametrize("fmt", ["text", "json"])
+def test_info_imports_no_specutils_nddata_or_wcs(spectrum_file, fmt):
+    # a fresh interpreter runs the command; the heavy modules are looked up in sys.modules at exit
+    code = ("import sys\nfrom zline.cli import main\n"
+            "rc = main(sys.argv[1:])\n"
+            f"print('LOADED', ','.join(m for m in {HEAVY_FOR_INFO!r} if m in sys.modules))\n"
+            "sys.exit(rc)")
+    run = subprocess.run([sys.executable, "-c", code, "info", str(spectrum_file), "--format", fmt],
+                         capture_output=True, text=True, timeout=300)
+    assert run.returncode == 0, run.stderr
+    assert "6000" in run.stdout  # it did read the file
+    last = run.stdout.strip().splitlines()[-1]
+    assert last.startswith("LOADED")
+    assert last.removeprefix("LOADED").strip() == "", f"zline info imported {last}"

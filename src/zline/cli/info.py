@@ -3,7 +3,7 @@
 import json
 
 from zline.cli import CommandError
-from zline.cli._common import add_spectrum_options, json_safe, read_spectrum_for
+from zline.cli._common import add_spectrum_options, json_safe, print_flags
 
 __all__ = ["COMMAND", "HELP", "add_arguments", "run", "format_text"]
 
@@ -49,11 +49,15 @@ def format_text(info):
 
 
 def run(args):
-    from zline.physics.spectra import describe_spectrum
+    # read_light: the same reading as read_spectrum without building a specutils Spectrum,
+    # so neither specutils nor astropy.nddata/wcs is imported (the command starts fast)
+    from zline.physics.spectra import describe_spectrum, read_light
 
     if args.format not in FORMATS:  # argparse checks this too; kept for direct callers
         raise CommandError(f"--format {args.format!r} is not one of {sorted(FORMATS)}")
-    spectrum = read_spectrum_for(args, COMMAND)  # SpectrumFormatError is a ValueError
+    spectrum = read_light(args.file, hdu=getattr(args, "hdu", None),
+                          row=getattr(args, "row", None))  # SpectrumFormatError is a ValueError
+    print_flags(COMMAND, spectrum)
     info = describe_spectrum(spectrum)
     if args.format == "json":
         print(json.dumps(json_safe(info), indent=2, sort_keys=True, allow_nan=False))
