@@ -113,6 +113,7 @@ def test_widget_in_jupyterlab(lab_server, page):
 
     # --- drag the slider: z and the drawn guides move
     before = page.evaluate(ALL_GUIDES, FIG)
+    page.locator(".zline-z .noUi-handle").scroll_into_view_if_needed()  # it must be on screen to drag
     handle = page.locator(".zline-z .noUi-handle").bounding_box()
     page.mouse.move(handle["x"] + handle["width"] / 2, handle["y"] + handle["height"] / 2)
     page.mouse.down()
