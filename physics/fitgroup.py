@@ -164,12 +164,7 @@ def _fixed_profile_flux(model, p, mu_expect, x, t, ys, es, scatter, dof):
             pf[i] = mu_expect[k] / model.rel[k]
         elif name.startswith("mu"):
             pf[i] = mu_expect[int(name[2:])]
-    shp = model.shapes(pf, x)
-    eff = np.array(shp)
-    for i, (j, r) in model.ratios.items():
-        eff[j] = eff[j] + r * shp[i]
-    cols = [t**k for k in range(model.order + 1)] + [eff[k] for k in model.free_flux]
-    a = np.array(cols).T / es[:, None]
+    a = _design(model, pf, x, t, es)
     coef, *_ = np.linalg.lstsq(a, ys / es, rcond=None)
     cov, _ = covariance(a)
     if cov is None:
@@ -187,6 +182,17 @@ def _fixed_profile_flux(model, p, mu_expect, x, t, ys, es, scatter, dof):
     return flux, err
 
 
+def _design(model, p, x, t, es):
+    """Error-weighted design matrix of the linear parameters (continuum powers, free fluxes) with
+    the line shapes of ``p``; a line tied by a flux ratio adds its shape to its partner's column."""
+    shp = model.shapes(p, x)
+    eff = np.array(shp)
+    for i, (j, r) in model.ratios.items():
+        eff[j] = eff[j] + r * shp[i]
+    cols = [t**k for k in range(model.order + 1)] + [eff[k] for k in model.free_flux]
+    return np.array(cols).T / es[:, None]
+
+
 class _Linear:
     """Result of a fit whose parameters are all linear (continuum and fluxes)."""
 
@@ -200,12 +206,7 @@ class _Linear:
 def _solve(model, x, ys, es, t, p0, lb, ub):
     """Bounded nonlinear least squares, or one linear solve when no shape parameter is free."""
     if all(name[0] in "cF" for name in model.names):
-        shp = model.shapes(p0, x)
-        eff = np.array(shp)
-        for i, (j, r) in model.ratios.items():
-            eff[j] = eff[j] + r * shp[i]
-        cols = [t**k for k in range(model.order + 1)] + [eff[k] for k in model.free_flux]
-        a = np.array(cols).T / es[:, None]
+        a = _design(model, p0, x, t, es)
         coef, *_ = np.linalg.lstsq(a, ys / es, rcond=None)
         return _Linear(coef, -a, ys / es - a @ coef)
     return least_squares(lambda p: (ys - model(p, x)) / es, p0, bounds=(lb, ub),
