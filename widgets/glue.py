@@ -12,6 +12,7 @@ import numpy as np
 from astropy.table import Table
 
 from zline.physics import batch, session, tables
+from zline.physics._atomic import NotZlineFileError
 from zline.physics.kinematics import velocity_from
 from zline.physics.scan_kinds import KIND_SETS
 
@@ -62,12 +63,18 @@ def session_state(w):
             "settings": settings, "spectrum": source}
 
 
+def _say_refused(w, exc, exists_text):
+    """Show why a write was refused: a file zline did not write is never replaced, so offering
+    overwrite=True would mislead; say the writer's own reason instead."""
+    w._say(str(exc) if isinstance(exc, NotZlineFileError) else exists_text, level="error")
+
+
 def save(w, path, overwrite=False):
     try:
         written = session.save_session(path, session_state(w), overwrite=overwrite)
-    except FileExistsError:
-        w._say(f"{os.fspath(path)} exists already; nothing was written (pass overwrite=True "
-               f"to replace it)", level="error")
+    except FileExistsError as exc:
+        _say_refused(w, exc, f"{os.fspath(path)} exists already; nothing was written (pass "
+                             f"overwrite=True to replace it)")
         raise
     w._say(f"saved {len(w._book)} lock(s) to {written}")
     return written
@@ -84,9 +91,9 @@ def export(w, path, format="ecsv", overwrite=False):
     table.meta.setdefault("line_set", w._set_name)
     try:
         written = tables.write_table(table, target, format=format, overwrite=overwrite)
-    except FileExistsError:
-        w._say(f"{target} exists already; nothing was written. Choose another file name "
-               f"(or pass overwrite=True).", level="error")
+    except FileExistsError as exc:
+        _say_refused(w, exc, f"{target} exists already; nothing was written. Choose another file "
+                             f"name (or pass overwrite=True).")
         raise
     w._say(f"wrote {len(table)} line(s) as {format} to {written}")
     return written

@@ -730,3 +730,21 @@ def test_reader_assumptions_are_shown_above_the_plot(tmp_path):
     assert "read with assumptions" in shown
     for message in said:
         assert message in shown
+
+
+def test_a_file_zline_did_not_write_is_refused_with_its_reason(w, tmp_path):
+    """Even with overwrite=True a file zline did not write is kept, and the status says why
+    instead of offering overwrite=True."""
+    from zline.physics._atomic import NotZlineFileError
+
+    w.lock(near=w._x[int(np.argmax(w.spectrum.flux.value))] * w._xunit)
+    theirs = tmp_path / "notes.json"
+    theirs.write_text('{"mine": true}')
+    with pytest.raises(NotZlineFileError):
+        w.save(theirs, overwrite=True)
+    assert theirs.read_text() == '{"mine": true}'
+    assert "overwrite=True" not in w.status and "Problem" in w.status
+    with pytest.raises(NotZlineFileError):
+        w.export(theirs, format="ecsv", overwrite=True)
+    assert theirs.read_text() == '{"mine": true}'
+    assert "overwrite=True" not in w.status
