@@ -12,25 +12,20 @@ import json
 import os
 import re
 import shutil
-import signal
-import socket
 import statistics
-import subprocess
 import sys
 import tempfile
 import time
-import urllib.error
-import urllib.request
 from pathlib import Path
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "widgets"))
+from labserver import CHROMIUM_ARGS as ARGS, TOKEN, start_lab, stop_lab  # noqa: E402
 
 __all__ = ["main"]
 
 REPEATS = 15
 GOAL_MS = 50.0
 CHROMIUM = os.environ.get("CHROMIUM", "/usr/bin/chromium")
-ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-TOKEN = "zline-bench"
 
 APP = r'''
 import numpy as np, astropy.units as u, ipywidgets as W, bqplot as bq
@@ -74,12 +69,6 @@ INSTALL = """([fig, label]) => {
 }"""
 
 
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 def _start_lab(base):
     import nbformat
     root = base / "root"
@@ -88,38 +77,7 @@ def _start_lab(base):
     nb.cells = [nbformat.v4.new_code_cell(APP)]
     nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3 (ipykernel)", "language": "python"}
     nbformat.write(nb, str(root / "bench.ipynb"))
-    env = dict(os.environ)
-    for var, sub in [("HOME", "home"), ("JUPYTER_CONFIG_DIR", "cfg"), ("JUPYTER_DATA_DIR", "data"),
-                     ("JUPYTER_RUNTIME_DIR", "runtime"), ("IPYTHONDIR", "ipython")]:
-        (base / sub).mkdir()
-        env[var] = str(base / sub)
-    settings = base / "cfg/lab/user-settings/@jupyterlab/apputils-extension"
-    settings.mkdir(parents=True)
-    (settings / "notification.jupyterlab-settings").write_text('{"fetchNews": "false", "checkForUpdates": false}')
-    binary = Path(sys.executable).parent
-    env["PATH"] = f"{binary}{os.pathsep}{env.get('PATH', '')}"
-    port = _free_port()
-    cmd = [str(binary / "jupyter"), "lab", "--no-browser", "--allow-root", "--ip=127.0.0.1", f"--port={port}",
-           "--ServerApp.port_retries=0", f"--IdentityProvider.token={TOKEN}", f"--ServerApp.root_dir={root}",
-           "--LabApp.news_url=None", "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate",
-           "--LabApp.extension_manager=readonly", "--expose-app-in-browser"]
-    log = open(base / "lab.log", "w")
-    proc = subprocess.Popen(cmd, cwd=root, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
-    url = f"http://127.0.0.1:{port}"
-    end = time.monotonic() + 120
-    while True:
-        if proc.poll() is not None:
-            raise RuntimeError(f"jupyter lab exited rc={proc.returncode}; see {base / 'lab.log'}")
-        try:
-            urllib.request.urlopen(f"{url}/api/status?token={TOKEN}", timeout=5)
-            break
-        except urllib.error.HTTPError:
-            break
-        except OSError:
-            if time.monotonic() > end:
-                raise TimeoutError(url) from None
-            time.sleep(0.3)
-    return proc, log, url, base / "runtime"
+    return start_lab(root, base)
 
 
 def _kernel_times(runtime, n, setup=""):
@@ -183,12 +141,7 @@ def main():
             texts = page.evaluate("() => document.querySelectorAll('.zline-band text').length")
             browser.close()
     finally:
-        os.killpg(proc.pid, signal.SIGTERM)
-        try:
-            proc.wait(30)
-        except subprocess.TimeoutExpired:
-            os.killpg(proc.pid, signal.SIGKILL)
-        log.close()
+        stop_lab(proc, log)
         shutil.rmtree(base, ignore_errors=True)
     med, base_med, k_med = statistics.median(zline), statistics.median(base_ms), statistics.median(kernel)
     print("LineIdentifier: 1 000 000 spectrum pixels, 2000 predicted lines; headless chromium, software rendering")

@@ -1,15 +1,8 @@
 """Fixtures for the widget tests: an invented spectrum, a small line table, a recording comm, and
 (for the browser tests) JupyterLab on loopback driven by Debian's Chromium through Playwright."""
 
-import os
 import re
-import signal
-import socket
-import subprocess
 import sys
-import time
-import urllib.error
-import urllib.request
 from pathlib import Path
 
 import astropy.units as u
@@ -64,30 +57,8 @@ def sent(monkeypatch):
 
 
 # ---------------------------------------------------------------------------------------- browser
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-BIN = Path(sys.executable).parent
-TOKEN = "zline-test-token"
-
-
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def _isolated_env(base):
-    env = dict(os.environ)
-    for var, sub in [("HOME", "home"), ("JUPYTER_CONFIG_DIR", "cfg"), ("JUPYTER_DATA_DIR", "data"),
-                     ("JUPYTER_RUNTIME_DIR", "runtime"), ("IPYTHONDIR", "ipython")]:
-        (base / sub).mkdir(exist_ok=True)
-        env[var] = str(base / sub)
-    env["JUPYTER_PLATFORM_DIRS"] = "1"
-    env["PATH"] = f"{BIN}{os.pathsep}{env.get('PATH', '')}"
-    settings = base / "cfg/lab/user-settings/@jupyterlab/apputils-extension"
-    settings.mkdir(parents=True, exist_ok=True)
-    (settings / "notification.jupyterlab-settings").write_text('{"fetchNews": "false", "checkForUpdates": false}')
-    return env
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from labserver import CHROMIUM_ARGS, TOKEN, start_lab, stop_lab  # noqa: E402
 
 
 class LabServer:
@@ -105,41 +76,11 @@ def lab_root(tmp_path):
 @pytest.fixture
 def lab_server(tmp_path, lab_root):
     """JupyterLab on 127.0.0.1 at a free port, with fresh config/data/runtime dirs."""
-    port = _free_port()
-    cmd = [str(BIN / "jupyter"), "lab", "--no-browser", "--allow-root", "--ip=127.0.0.1",
-           f"--port={port}", "--ServerApp.port_retries=0", f"--IdentityProvider.token={TOKEN}",
-           f"--ServerApp.root_dir={lab_root}", "--LabApp.news_url=None",
-           "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate",
-           "--LabApp.extension_manager=readonly", "--expose-app-in-browser"]
-    env = _isolated_env(tmp_path)
-    url = f"http://127.0.0.1:{port}"
-    log = open(tmp_path / "lab.log", "w")
-    proc = subprocess.Popen(cmd, cwd=lab_root, env=env, stdout=log, stderr=subprocess.STDOUT,
-                            start_new_session=True)
+    proc, log, url, runtime = start_lab(lab_root, tmp_path)
     try:
-        end = time.monotonic() + 120
-        while True:
-            if proc.poll() is not None:
-                raise RuntimeError(f"jupyter lab exited rc={proc.returncode}, see {tmp_path / 'lab.log'}")
-            try:
-                urllib.request.urlopen(f"{url}/api/status?token={TOKEN}", timeout=5)
-                break
-            except urllib.error.HTTPError:
-                break
-            except OSError:
-                if time.monotonic() > end:
-                    raise TimeoutError(f"jupyter lab did not answer at {url}")
-                time.sleep(0.3)
-        yield LabServer(url, lab_root, Path(env["JUPYTER_RUNTIME_DIR"]), TOKEN)
+        yield LabServer(url, lab_root, runtime, TOKEN)
     finally:
-        if proc.poll() is None:
-            os.killpg(proc.pid, signal.SIGTERM)
-            try:
-                proc.wait(30)
-            except subprocess.TimeoutExpired:
-                os.killpg(proc.pid, signal.SIGKILL)
-                proc.wait()
-        log.close()
+        stop_lab(proc, log)
 
 
 @pytest.fixture(scope="session")
