@@ -14,6 +14,7 @@ import numpy as np
 from scipy.optimize import least_squares
 
 from zline.physics._fitmodel import GAUSS_FWHM, Model, covariance
+from zline.physics._threads import one_blas_thread
 from zline.physics.fitting import (_C_KMS, DETECTION_SNR, KINDS, PROFILES, SAMPLING_FWHM_PIXELS,
                                    UPPER_LIMIT_SIGMA, WIDTH_CEILING, Component, LineFit,
                                    _as_spectral, _as_width, _regions, _spectrum_arrays,
@@ -254,6 +255,7 @@ def _component_arrays(comps, sunit, x_all, spectrum, fwhm_min, fwhm_max, lo, hi,
     return out
 
 
+@one_blas_thread
 def fit_group(spectrum, components, window, *, continuum_order=1, profile="gaussian",
               ratios=None, exclude=None, fwhm_min=None, fwhm_max=None, label=None):
     """Fit several lines of one window together: the engine behind `fit_line` and

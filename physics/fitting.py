@@ -42,6 +42,7 @@ from astropy.constants import c as _c
 from astropy.nddata import StdDevUncertainty
 from scipy.optimize import least_squares
 
+from zline.physics._threads import one_blas_thread
 
 __all__ = ["LineFit", "Component", "fit_line", "resolution_fwhm", "PROFILES",
            "KINDS", "DETECTION_SNR", "UPPER_LIMIT_SIGMA", "WIDTH_CEILING", "SAMPLING_FWHM_PIXELS"]
@@ -422,6 +423,7 @@ def _default_window(window, mus, fw, dx, sunit, label):
                      f"[low, high] pair, got {window.size} values")
 
 
+@one_blas_thread
 def fit_line(spectrum, center, window=None, continuum_order=1, profile="gaussian",
              components=None, tie_width=False, tie_ratio=None, exclude=None, *,
              fwhm=None, tie_center=True, label=None, kind="any", fwhm_min=None,

@@ -27,6 +27,7 @@ import astropy.units as u
 import numpy as np
 from astropy.constants import c as _c
 
+from zline.physics._threads import one_blas_thread
 from zline.physics.catalog import LINE_SETS, line_set
 from zline.physics.fitgroup import fit_group
 from zline.physics.fitting import SAMPLING_FWHM_PIXELS, Component, resolution_fwhm
@@ -422,6 +423,7 @@ def _joint(spectrum, rows, sel, found, sol, label_row):
                    velocity_err=abs(dv) * rel_err * _KMS)
 
 
+@one_blas_thread
 def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", lines=None, *,
                      tolerance=100 * _KMS, min_strength=0.0, solve_for=None,
                      blend=BLEND_DISTANCE, window=None):
