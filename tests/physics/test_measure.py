@@ -358,6 +358,26 @@ def test_absorption_galaxies_give_published_z(realdata):
         assert dz < 3 * np.hypot(m.z_err, float(row["z_published_err"])), row["file"]
 
 
+def test_absorption_galaxies_full_set_give_published_z(realdata):
+    # the whole galaxy-absorption set (Balmer series, Ca II H and K, Ca I, Mg I b, Na I D, the
+    # Ca II triplet) at the published z: absorption locks, z within errors of the SDSS pipeline
+    # redshift (HDU 2, column Z)
+    rows = realdata[realdata["kind"] == "galaxy_absorption"]
+    assert len(rows) == 3
+    for row in rows:
+        m = measure_spectrum(_real(row), z=float(row["z_published"]), lines="galaxy-absorption")
+        assert m.line_set == "galaxy-absorption" and m.medium == "vacuum"
+        assert len(m.lines) >= 10, row["file"]
+        assert len(m.locks) >= 2, row["file"]
+        assert all(lock.fit.flux.value < 0 for lock in m.locks), row["file"]
+        dz = abs(m.z - float(row["z_published"]))
+        assert dz < 3 * np.hypot(m.z_err, float(row["z_published_err"])), row["file"]
+        # the locks' weighted mean, before the joint shift, agrees too
+        dz_locks = abs(m.search["locks_z"] - float(row["z_published"]))
+        assert dz_locks < 3 * np.hypot(m.search["locks_z_err"],
+                                       float(row["z_published_err"])), row["file"]
+
+
 def test_quasar_broad_lines_measured_with_offsets(realdata):
     # broad lines from published vacuum rest wavelengths (Lyα, C IV and Mg II doublet means,
     # C III], Hβ, Hα: the SDSS spectroscopic pipeline line list; [O III] 5007 narrow)
