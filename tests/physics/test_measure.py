@@ -364,6 +364,7 @@ def test_absorption_galaxies_full_set_give_published_z(realdata):
     # redshift (HDU 2, column Z)
     rows = realdata[realdata["kind"] == "galaxy_absorption"]
     assert len(rows) == 3
+    offsets = []  # km/s
     for row in rows:
         m = measure_spectrum(_real(row), z=float(row["z_published"]), lines="galaxy-absorption")
         assert m.line_set == "galaxy-absorption" and m.medium == "vacuum"
@@ -376,6 +377,15 @@ def test_absorption_galaxies_full_set_give_published_z(realdata):
         dz_locks = abs(m.search["locks_z"] - float(row["z_published"]))
         assert dz_locks < 3 * np.hypot(m.search["locks_z_err"],
                                        float(row["z_published_err"])), row["file"]
+        zp = float(row["z_published"])
+        for r in m.lines:
+            if r["detected"]:
+                obs = r["fit"].center.to_value(u.AA)
+                offsets.append(_C_KMS * (obs / (r["rest"].to_value(u.AA) * (1 + zp)) - 1))
+    # each detected line against the SDSS pipeline redshift: no common offset of the set's rest
+    # wavelengths (air positions in these vacuum spectra would read about -85 km/s)
+    assert len(offsets) >= 10
+    assert abs(np.median(offsets)) < 30.0
 
 
 def test_quasar_broad_lines_measured_with_offsets(realdata):

@@ -62,3 +62,45 @@ def test_confirmed_rows_name_the_list():
             assert "SDSS spectroscopic pipeline line list" in source, row["label"]
             # a doublet's centroid is confirmed, the split between its lines stays recalled
             assert "from memory" not in source.split(";")[1], row["label"]
+
+
+# Stellar absorption lines of the galaxy-absorption and stellar sets: standard-air wavelengths
+# (NIST ASD, from memory), converted to vacuum by specutils (Morton 2000 formula), must give the
+# sets' vacuum rest wavelengths to 0.01 A (under 1 km/s).  A set left in air would be off by
+# ~1.1-2.3 A (85 km/s), the size of offset this guards against.
+STELLAR_AIR = {
+    "Ca II K": 3933.663, "Ca II H": 3968.468, "Ca I 4227": 4226.728,
+    "Mg I b 5167": 5167.321, "Mg I b 5173": 5172.684, "Mg I b 5184": 5183.604,
+    "Na I D2": 5889.951, "Na I D1": 5895.924,
+    "Ca II 8498": 8498.02, "Ca II 8542": 8542.09, "Ca II 8662": 8662.14,
+}
+
+
+@pytest.mark.parametrize("set_name", ["galaxy-absorption", "stellar"])
+def test_stellar_lines_are_published_air_wavelengths_in_vacuum(set_name):
+    from specutils.utils.wcs_utils import air_to_vac
+
+    t = line_set(set_name, medium="vacuum")
+    ours = {str(lab): float(r.to_value(u.AA)) for lab, r in zip(t["label"], t["rest"])}
+    for label, air in STELLAR_AIR.items():
+        vac = float(air_to_vac(air * u.AA, scheme="inversion", method="Morton2000").value)
+        assert ours[label] == pytest.approx(vac, abs=0.01), label
+    air_set = line_set(set_name, medium="air")
+    air_ours = {str(lab): float(r.to_value(u.AA)) for lab, r in zip(air_set["label"],
+                                                                    air_set["rest"])}
+    for label, air in STELLAR_AIR.items():
+        assert air_ours[label] == pytest.approx(air, abs=0.01), label
+
+
+# Balmer absorption of the galaxy-absorption set against the SDSS spectroscopic pipeline line list
+# (vacuum, HDU 3 LINEWAVE); the list's entry named "H_epsilon" sits at H8's wavelength (see PAIRS).
+ABSORPTION_BALMER = {"Hα": "H_alpha", "Hβ": "H_beta", "Hγ": "H_gamma", "Hδ": "H_delta",
+                     "H8": "H_epsilon"}
+
+
+def test_absorption_set_balmer_lines_match_sdss_pipeline_list(sdss_lines):
+    t = line_set("galaxy-absorption", medium="vacuum")
+    ours = {str(lab): float(r.to_value(u.AA)) for lab, r in zip(t["label"], t["rest"])}
+    for label, sdss_name in ABSORPTION_BALMER.items():
+        # SDSS spectroscopic pipeline line list (vacuum), HDU 3 LINEWAVE of the spectra files
+        assert ours[label] == pytest.approx(sdss_lines[sdss_name], abs=0.011), label
