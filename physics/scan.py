@@ -277,6 +277,11 @@ def _search(spectrum, plan, top, template=None, step=None, window=None, mask_sky
             continue
         sigma = sig_abs if kind in ("absorption-galaxy", "star") else sig_em
         for variant in (kind, "star-hot") if kind == "star" else (kind,):
+            if variant == "star":  # cool stars: narrow metal lines (`COOL_STAR_SIGMA_KMS`)
+                sigma = min(sig_abs, max(scan_kinds.COOL_STAR_SIGMA_KMS / _C_KMS, 0.8 * h,
+                                         1.5 * dln))
+            elif variant == "star-hot":
+                sigma = sig_abs
             comb = scan_kinds.comb_for(set_name, prep["medium"], sigma, variant)
             pad = 5 * float(np.max(comb.sigmas))
             comb = comb.restrict(g0 - s_max - pad, g1 - s_min + pad)
@@ -300,6 +305,8 @@ def _search(spectrum, plan, top, template=None, step=None, window=None, mask_sky
         peaks, curve = _peaks(prep, comb, res, s_min, s_max, top + 2, plausible=tmpl is None)
         curves[kind] = (curve, comb)
         for p in peaks:
+            if kind == "absorption-galaxy" and tmpl is None:
+                p["score"] *= scan_kinds.break_factor(prep, p["s"])
             found.append(dict(p, kind=kind, comb=comb, vel=vel, plausible=tmpl is None,
                               s_min=s_min, s_max=s_max))
     if not found:
