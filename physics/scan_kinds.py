@@ -310,11 +310,12 @@ def break_strength(prep, s):
         return None
     meds = []
     for lo, hi in (_BREAK_BLUE, _BREAK_RED):
-        inside = (lnlam >= np.log(lo) + s) & (lnlam <= np.log(hi) + s)
-        use = inside & good
-        if inside.sum() < 5 or use.sum() < 0.8 * inside.sum():
+        i0, i1 = np.searchsorted(lnlam, [np.log(lo) + s, np.log(hi) + s])  # lnlam ascends
+        use = good[i0:i1]
+        if i1 - i0 < 5 or use.sum() < 0.8 * (i1 - i0):
             return None
-        meds.append(float(np.median(flux[use] * np.exp(2 * lnlam[use]))))  # f_nu ~ lam^2 f_lam
+        x = lnlam[i0:i1][use]
+        meds.append(float(np.median(flux[i0:i1][use] * np.exp(2 * x))))  # f_nu ~ lam^2 f_lam
     if not meds[0] > 0:
         return None
     return meds[1] / meds[0]
