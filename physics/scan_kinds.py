@@ -8,10 +8,12 @@ of its teeth:
   (at least the instrumental width, at most 350 km/s sigma);
 * ``quasar`` -- "quasar", broad lines with teeth of FWHM `BROAD_FWHM_KMS` (5000 km/s, the middle
   of the 2000-10000 km/s of type 1 AGN, wide enough to hold a C IV blueshift of 1500 km/s inside
-  the tooth), forbidden lines as narrow teeth;
+  the tooth; Lyα where it peaks in quasars, `QUASAR_PEAKS_AA`; N V, a blend on Lyα's red wing,
+  left out), forbidden lines as narrow teeth;
 * ``star`` -- "stellar", absorption teeth, searched only in a velocity window around z = 0,
-  twice: with teeth as wide as the measured absorption lines (cool stars) and with Balmer teeth
-  of sigma `HOT_BALMER_SIGMA_KMS` on the wide-continuum S/N (the broad Balmer lines of hot stars).
+  twice: with teeth as wide as the measured absorption lines but at most `COOL_STAR_SIGMA_KMS`
+  (the narrow metal lines of cool stars) and with Balmer teeth of sigma `HOT_BALMER_SIGMA_KMS`
+  on the wide-continuum S/N (the broad Balmer lines of hot stars).
 
 Weights: each tooth carries the line's typical strength, capped at `WEIGHT_CAP` (so no single line,
 e.g. Lyα, dominates a comb and a reading resting on one line is a weak reading), with the sign of
@@ -29,7 +31,9 @@ from scipy import signal
 from scipy.signal._peak_finding_utils import PeakPropertyWarning as _PeakPropertyWarning
 
 __all__ = ["KINDS", "KIND_SETS", "WEIGHT_CAP", "BROAD_FWHM_KMS", "Comb", "comb_for", "Correlator",
-           "line_width", "template_length", "refine", "matched", "fine", "features"]
+           "line_width", "template_length", "refine", "matched", "fine", "features",
+           "break_strength", "break_factor", "BREAK_OLD", "BREAK_FLOOR", "COOL_STAR_SIGMA_KMS",
+           "QUASAR_PEAKS_AA"]
 
 C_KMS = 299792.458  # km/s, exact (SI definition)
 KIND_SETS = {"emission-galaxy": "galaxy-emission", "absorption-galaxy": "galaxy-absorption",
@@ -40,6 +44,26 @@ HOT_BALMER_SIGMA_KMS = 700.0  # pressure-broadened Balmer lines of A-F stars (co
 BROAD_FWHM_KMS = 5000.0
 WIDE_CONTINUUM_KMS = 40000.0  # running-median window under broad lines (several FWHM)
 ABS_SIGMA_MAX_KMS = 350.0
+#: Largest tooth sigma of the cool-star comb: the metal lines of F-M stars are intrinsically a
+#: few km/s wide (slow rotation, common practice), so their observed width is the instrument's;
+#: the widest absorption features such spectra show are blends, whose width would blur the
+#: velocity (the hot-star comb keeps the measured width)
+COOL_STAR_SIGMA_KMS = 100.0
+#: Quasar broad lines whose comb tooth sits where the line peaks in quasars rather than at its
+#: laboratory wavelength, label: (laboratory, peak) in vacuum Angstrom.  Lyα: the forest absorbs
+#: its blue half, so its peak lies redward of 1215.67 A; peak of the median composite of SDSS
+#: quasars, Vanden Berk et al. 2001, AJ 122, 549, Table 2 (from memory, not looked up).  The
+#: blueshifted high-ionisation lines (C IV, Si IV) stay at their laboratory wavelengths inside
+#: teeth wide enough to hold the shift: placed at the composite's peaks they read the survey
+#: spectra of ../shared/realdata 180 km/s above the SDSS pipeline redshift on average.
+QUASAR_PEAKS_AA = {"Lyα": (1215.67, 1216.25)}
+#: 4000 A break (narrow definition: mean f_nu over rest 4000-4100 A over 3850-3950 A) of the old
+#: populations of absorption-line galaxies is about 1.5-2 and that of star-forming galaxies
+#: 1.1-1.4 (common practice, from memory); a smooth stellar or quasar continuum gives ~1
+BREAK_OLD = 1.3
+#: Score factor of an absorption-galaxy reading whose break is measured at 1 or below
+BREAK_FLOOR = 0.6
+_BREAK_BLUE, _BREAK_RED = (3850.0, 3950.0), (4000.0, 4100.0)  # rest, Angstrom (vacuum ~ air)
 
 
 class Comb:
@@ -102,22 +126,31 @@ def comb_for(line_set_name, medium, sigma, kind=None):
     rest_ln, weights, labels = _set_arrays(line_set_name, medium)
     sigmas = np.full(rest_ln.size, float(sigma))
     data = "d"
+    rest_ln = rest_ln.copy()
     if kind == "quasar":
         broad = np.array([not lab.startswith("[") for lab in labels])
         sigmas[broad] = max(sigma, BROAD_FWHM_KMS / 2.3548 / C_KMS)
         data = "d_wide"
+        for k, lab in enumerate(labels):
+            if lab in QUASAR_PEAKS_AA:
+                lab_aa, peak_aa = QUASAR_PEAKS_AA[lab]
+                rest_ln[k] += np.log(peak_aa / lab_aa)
     elif kind == "star-hot":
         hyd = np.array([_is_hydrogen(lab) for lab in labels])
         sigmas[hyd] = max(sigma, HOT_BALMER_SIGMA_KMS / C_KMS)
         data = "d_wide"
     weights = weights.copy()
     # blends whose mix varies from object to object would pull the reading: Ca II H and Hε are
-    # 120 km/s apart; the absorption combs keep Ca II H (cool populations), the hot-star comb Hε
-    drop = {"absorption-galaxy": ("Hε",), "star": ("Hε",), "star-hot": ("Ca II H",)}.get(kind, ())
+    # 120 km/s apart; the absorption combs keep Ca II H (cool populations), the hot-star comb Hε;
+    # broad N V 1240 sits on the red wing of broad Lyα (5800 km/s apart, about one broad-line
+    # FWHM), so its tooth reads the wing of Lyα and drags the reading blueward: the quasar comb
+    # keeps Lyα only
+    drop = {"absorption-galaxy": ("Hε",), "star": ("Hε",), "star-hot": ("Ca II H",),
+            "quasar": ("N V 1240",)}.get(kind, ())
     for k, lab in enumerate(labels):
         if lab in drop:
             weights[k] = 0.0
-    return Comb(line_set_name, rest_ln.copy(), weights, sigmas, list(labels), data)
+    return Comb(line_set_name, rest_ln, weights, sigmas, list(labels), data)
 
 
 def _teeth(n, h, comb, t0, square=False):
@@ -266,3 +299,41 @@ def features(comb, lines):
             n += 1
             last = r
     return n
+
+
+def break_strength(prep, s):
+    """The 4000 A break of the data read at ln(1+z) = s: median f_nu over rest 4000-4100 A over
+    that over 3850-3950 A (`_BREAK_RED`, `_BREAK_BLUE`); None when either band is not covered
+    (less than 80% of its pixels usable) or the blue band's median is not positive."""
+    lnlam, good, flux = prep["lnlam"], prep["good"], prep.get("flux")
+    if flux is None:
+        return None
+    meds = []
+    for lo, hi in (_BREAK_BLUE, _BREAK_RED):
+        i0, i1 = np.searchsorted(lnlam, [np.log(lo) + s, np.log(hi) + s])  # lnlam ascends
+        use = good[i0:i1]
+        if i1 - i0 < 5 or use.sum() < 0.8 * (i1 - i0):
+            return None
+        x = lnlam[i0:i1][use]
+        meds.append(float(np.median(flux[i0:i1][use] * np.exp(2 * x))))  # f_nu ~ lam^2 f_lam
+    if not meds[0] > 0:
+        return None
+    return meds[1] / meds[0]
+
+
+def break_factor(prep, s):
+    """Score factor of an absorption-galaxy reading at ln(1+z) = s from its 4000 A break.
+
+    An absorption-line galaxy's light is an old stellar population, whose strongest feature is
+    the 4000 A break (`BREAK_OLD` and more).  A reading that puts rest 4000 A inside the data
+    where the spectrum shows no break (a star's or a quasar's smooth continuum read at the wrong
+    redshift, e.g. a star's Na D read as Mg II 2800 at z ~ 1.1) is implausible: its score is
+    scaled linearly from 1 at a break of `BREAK_OLD` down to `BREAK_FLOOR` at a break of 1 or
+    less.  The factor multiplies the score at the reading's peak and never moves z; readings
+    whose rest 4000 A lies outside the data keep factor 1.
+    """
+    d = break_strength(prep, s)
+    if d is None:
+        return 1.0
+    return float(np.clip(BREAK_FLOOR + (1 - BREAK_FLOOR) * (d - 1.0) / (BREAK_OLD - 1.0),
+                         BREAK_FLOOR, 1.0))

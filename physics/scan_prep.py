@@ -7,6 +7,9 @@ Work is bounded before anything large is allocated: the data are combined in blo
 holds more than `MAX_GRID` points (coarsened, with a note, otherwise).  The continuum is a running
 median over `CONTINUUM_KMS` of velocity (not a fixed number of pixels, so finely sampled spectra
 keep their lines), taken on block medians so that its cost does not grow with the window.
+A mask that leaves less than `MASK_ALL_FRACTION` of the pixels with finite data flags the whole
+spectrum rather than pixels (survey files set fibre-level warning bits on every pixel); the
+search then ignores it and says so in its notes.
 """
 
 import astropy.units as u
@@ -24,18 +27,24 @@ MIN_STEP = 1e-6  # ln(lambda) per grid step: 0.3 km/s
 CONTINUUM_KMS = 7000.0  # running-median window (common practice: several broad-line widths)
 CLIP_SNR = 8.0  # per-pixel S/N ceiling (see prepare) ...
 CLIP_PERCENTILE = 95.0  # ... unless 5% of the pixels are above it (rich absorption spectra)
-WHITEN_KMS = 20000.0  # window of the running scatter that down-weights excess structure
+WHITEN_KMS = 20000.0
+MASK_ALL_FRACTION = 0.1  # a mask leaving less than this share of the usable pixels is ignored  # window of the running scatter that down-weights excess structure
 
-#: Bright night-sky emission lines in AIR [Angstrom]: the airglow lines of O I, the mercury
-#: street-light lines and the brightest OH Meinel-band lines below 9400 A (values of the trade,
-#: common practice, from memory); each is masked over +-`SKY_HALF_WIDTH_AA`.
+#: Bright night-sky emission lines in AIR [Angstrom]: the airglow lines of O I, the Na I D
+#: doublet (airglow and sodium street lights), the mercury street-light lines and the brightest
+#: OH Meinel-band lines below 9400 A (values of the trade, common practice, from memory); each
+#: is masked over +-`SKY_HALF_WIDTH_AA`.  Na I D is also one of the strongest absorption lines
+#: of stars and of galaxies near z = 0, so there only excess emission (a sky residual) is
+#: removed and absorption is kept (`EMISSION_ONLY`).
 SKY_LINES_AIR = ((4358.34, "Hg I street light"), (5460.74, "Hg I street light"),
-                 (5577.34, "[O I] night sky"), (6300.30, "[O I] night sky"),
+                 (5577.34, "[O I] night sky"), (5889.95, "Na I D night sky, emission only"),
+                 (5895.92, "Na I D night sky, emission only"), (6300.30, "[O I] night sky"),
                  (6363.78, "[O I] night sky")) + tuple(
     (w, "OH night sky") for w in (7316.28, 7340.89, 7750.64, 7794.11, 7821.50, 7913.71,
                                   7993.33, 8344.60, 8399.17, 8430.17, 8827.10, 8885.85,
                                   8919.61, 8943.40, 8988.38, 9001.38, 9375.96))
 SKY_HALF_WIDTH_AA = 4.0
+EMISSION_ONLY = "emission only"
 #: Telluric absorption bands in AIR [Angstrom] (O2 B and A bands; common practice).
 TELLURIC_BANDS_AIR = ((6864.0, 6935.0, "telluric O2 B band"),
                       (7591.0, 7700.0, "telluric O2 A band"))
@@ -138,7 +147,7 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     -------
     dict
         ``grid, d`` (S/N summed per grid cell), ``d_wide``, ``cov`` (1 where data), ``var``
-        (variance of d per grid cell), ``snr, good, lnlam`` (data pixels), ``h`` (grid step),
+        (variance of d per grid cell), ``snr, good, lnlam, flux`` (data pixels), ``h`` (grid step),
         ``dln`` (median pixel step), ``medium, is_freq, unit, masked``
         (list of (lo, hi, reason) in the spectrum's unit), ``notes`` (list of str).
     """
@@ -151,9 +160,18 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     mask = np.zeros(flux.shape, bool) if spectrum.mask is None else \
         np.asarray(spectrum.mask).reshape(-1).astype(bool)
     err = _uncertainty(spectrum, flux.shape)
-    good = ~mask & np.isfinite(flux) & np.isfinite(lam) & (lam > 0)
+    usable = np.isfinite(flux) & np.isfinite(lam) & (lam > 0)
     if err is not None:
-        good &= np.isfinite(err) & (err > 0)
+        usable &= np.isfinite(err) & (err > 0)
+    notes = []
+    n_usable, n_left = int(usable.sum()), int((usable & ~mask).sum())
+    if n_usable >= 100 and n_left < MASK_ALL_FRACTION * n_usable:
+        # a mask on (nearly) every pixel with finite data flags the whole spectrum (a survey's
+        # fibre-level warning bit), not pixels to drop: searched without it, with a note
+        notes.append(f"the spectrum's mask covers {1 - n_left / n_usable:.0%} of the pixels "
+                     f"with finite data and errors; searched without the mask")
+        mask = np.zeros(flux.shape, bool)
+    good = usable & ~mask
     if good.sum() < 10:
         raise ValueError(f"Argument 'spectrum' has {int(good.sum())} usable pixels; a scan "
                          "needs at least 10.")
@@ -163,7 +181,6 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     lam, flux, good = lam[order], flux[order], good[order]
     err = None if err is None else err[order]
     lnlam = np.log(np.where(lam > 0, lam, 1.0))
-    notes = []
     span = lnlam[good][-1] - lnlam[good][0]
     if not span > 0:
         raise ValueError("Argument 'spectrum' has a spectral axis of zero extent (all usable "
@@ -233,7 +250,13 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     masked = []
     if mask_sky and not is_freq and unit.is_equivalent(u.AA):
         for lo, hi, why in _sky_regions(np.exp(g0), np.exp(g1), medium):
-            good &= ~((lam >= lo) & (lam <= hi))
+            inside = (lam >= lo) & (lam <= hi)
+            if why.endswith(EMISSION_ONLY):  # keep absorption, drop the (sky) excess
+                snr[inside] = np.minimum(snr[inside], 0.0)
+                if snr_wide is not None:
+                    snr_wide[inside] = np.minimum(snr_wide[inside], 0.0)
+            else:
+                good &= ~inside
             masked.append((lo, hi, why))
     if h >= 0.999 * coarse:
         # every grid cell sums the S/N of the pixels in it (variance = their number)
@@ -262,5 +285,5 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
         q = (np.array([lo, hi]) * u.AA).to_value(unit, equivalencies=u.spectral())
         masked_q.append((float(q.min()), float(q.max()), why))
     return dict(grid=grid, d=d, d_wide=d_wide, cov=cov, var=var, snr=snr, good=good,
-                lnlam=lnlam, h=h, dln=dpix, width_em=w_em, width_abs=w_abs, medium=medium,
+                lnlam=lnlam, flux=flux, h=h, dln=dpix, width_em=w_em, width_abs=w_abs, medium=medium,
                 is_freq=is_freq, unit=unit, masked=masked_q, notes=notes)
