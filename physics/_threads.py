@@ -6,7 +6,9 @@ thread per core) spends its time synchronising threads, and when the cores are b
 work each call waits for its threads to be scheduled: ``numpy.linalg.lstsq`` of an 800 x 15
 matrix took 31 ms instead of 0.3 ms on a shared two-core machine.  `one_blas_thread` holds every
 loaded BLAS to one thread while the decorated call runs (nested calls pay the switch once) and
-restores the user's setting afterwards.
+restores the user's setting afterwards.  With OpenBLAS's process-wide thread pool only one Python
+thread at a time can change the setting (threadpoolctl's rule): decorated calls made by other
+threads meanwhile run with that thread's setting.
 """
 
 import functools
