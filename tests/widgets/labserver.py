@@ -31,6 +31,16 @@ def isolated_env(base):
         (base / sub).mkdir(exist_ok=True)
         env[var] = str(base / sub)
     env["JUPYTER_PLATFORM_DIRS"] = "1"
+    # reading a spectrum imports matplotlib (through ndcube); its first import in a fresh HOME
+    # builds a font cache and says so on stderr, which the notebook would show: build it here,
+    # once, and let the server's kernels share it
+    try:
+        import matplotlib.font_manager  # noqa: F401, PLC0415
+        import matplotlib  # noqa: PLC0415
+
+        env["MPLCONFIGDIR"] = matplotlib.get_configdir()
+    except ImportError:
+        pass
     env["PATH"] = f"{BIN}{os.pathsep}{env.get('PATH', '')}"
     settings = base / "cfg/lab/user-settings/@jupyterlab/apputils-extension"
     settings.mkdir(parents=True, exist_ok=True)
