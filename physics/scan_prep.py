@@ -45,6 +45,7 @@ SKY_LINES_AIR = ((4358.34, "Hg I street light"), (5460.74, "Hg I street light"),
                                   8919.61, 8943.40, 8988.38, 9001.38, 9375.96))
 SKY_HALF_WIDTH_AA = 4.0
 EMISSION_ONLY = "emission only"
+_HALF_NORMAL_MEAN = 1.0 / np.sqrt(2.0 * np.pi)  # E[max(n, 0)] of a unit Gaussian (exact)
 #: Telluric absorption bands in AIR [Angstrom] (O2 B and A bands; common practice).
 TELLURIC_BANDS_AIR = ((6864.0, 6935.0, "telluric O2 B band"),
                       (7591.0, 7700.0, "telluric O2 A band"))
@@ -251,10 +252,12 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     if mask_sky and not is_freq and unit.is_equivalent(u.AA):
         for lo, hi, why in _sky_regions(np.exp(g0), np.exp(g1), medium):
             inside = (lam >= lo) & (lam <= hi)
-            if why.endswith(EMISSION_ONLY):  # keep absorption, drop the (sky) excess
-                snr[inside] = np.minimum(snr[inside], 0.0)
+            if why.endswith(EMISSION_ONLY):  # keep absorption, drop the (sky) excess; for
+                # unit Gaussian noise min(n, 0) has mean -1/sqrt(2 pi), added back so that
+                # noise alone reads no absorption there (the star window is at rest there)
+                snr[inside] = np.minimum(snr[inside], 0.0) + _HALF_NORMAL_MEAN
                 if snr_wide is not None:
-                    snr_wide[inside] = np.minimum(snr_wide[inside], 0.0)
+                    snr_wide[inside] = np.minimum(snr_wide[inside], 0.0) + _HALF_NORMAL_MEAN
             else:
                 good &= ~inside
             masked.append((lo, hi, why))
