@@ -90,6 +90,8 @@ FLAG_CODES = {
     "file-truncated": "the file is shorter than its headers say; data may be missing",
     "file-repaired": "astropy repaired or ignored damaged header cards while reading",
     "extension-missing": "the header promises more extensions than the file holds",
+    "mask-whole-spectrum": "the mask marks nearly every pixel bad (a whole-spectrum flag); "
+                           "it was not applied",
 }
 
 

@@ -68,8 +68,6 @@ def build(out, ctx, opts, header=None, facts=None):
     if not finite.any():
         ctx.fail("every flux value is NaN or infinite; expected at least one finite value")
     mask = ~finite
-    if out["mask"] is not None:
-        mask |= np.asarray(out["mask"], dtype=bool)
     unc = None
     kind = out["unc_kind"]
     if out["unc"] is not None:
@@ -78,6 +76,8 @@ def build(out, ctx, opts, header=None, facts=None):
         unc = np.asarray(out["unc"], dtype=float)
         bad = ~np.isfinite(unc) | (unc <= 0)
         mask |= bad
+    if out["mask"] is not None:
+        mask |= _pixel_mask(np.asarray(out["mask"], dtype=bool), ~mask, ctx)
 
     flux_q = flux * funit
     unc_unit = funit ** UNCERTAINTY_KINDS[kind] if unc is not None else None
@@ -133,6 +133,25 @@ def build(out, ctx, opts, header=None, facts=None):
                          uncertainty_unit=unc_unit, mask=mask, meta=meta,
                          rest_value=extra.get("rest_value"),
                          velocity_convention=extra.get("velocity_convention"))
+
+
+#: A mask that leaves less than this share of the otherwise usable pixels is a flag on the whole
+#: spectrum (a survey's fibre-level bits set on every pixel), not a list of bad pixels.
+WHOLE_SPECTRUM_MASK = 0.9
+
+
+def _pixel_mask(given, usable, ctx):
+    """The file's mask as bad pixels, or none of it when it marks nearly every usable pixel."""
+    n_usable = int(np.count_nonzero(usable))
+    n_marked = int(np.count_nonzero(given & usable))
+    if n_usable >= 20 and n_marked > WHOLE_SPECTRUM_MASK * n_usable:
+        ctx.assume("mask-whole-spectrum",
+                   f"the mask marks {n_marked} of the {n_usable} pixels with finite flux and "
+                   f"uncertainty bad, which flags the whole spectrum rather than bad pixels; it was "
+                   f"not applied (pixels without finite flux or positive uncertainty stay masked); "
+                   f"check the file's quality bits before trusting this spectrum")
+        return np.zeros_like(given)
+    return given
 
 
 def decide_medium(kind, stated, override, ctx):

@@ -288,6 +288,29 @@ def test_table_columns_with_units(tmp_path):
     assert spec.meta["zline"]["medium"] == "vacuum"
 
 
+def test_mask_on_every_pixel_is_a_whole_spectrum_flag(tmp_path):
+    # a survey's fibre-level bit set on every pixel (SDSS AND_MASK carries such bits): applying it
+    # would leave nothing to measure, so it is reported instead of applied; a mask of a few bad
+    # pixels in the same file layout is applied as before
+    wave = np.linspace(4000, 5000, N)
+    err = np.full(N, 0.1)
+    err[5] = 0.0  # no uncertainty: masked whatever the mask says
+    for marks, applied in ((np.full(N, 4), False), ((np.arange(N) % 2) * 4, True)):
+        tab = _table([("Wavelength", "D", "Angstrom", wave), ("Flux", "E", "Jy", _flux()),
+                      ("Flux_Err", "E", "Jy", err), ("AND_MASK", "J", None, marks)])
+        path = _write(tmp_path / f"tab{int(applied)}.fits", fits.PrimaryHDU(), tab)
+        spec = read_spectrum(path)
+        codes = [f["code"] for f in spec.meta["zline"]["flags"]]
+        expected = (marks != 0) | (err <= 0)
+        if applied:
+            assert spec.mask.tolist() == expected.tolist()
+            assert "mask-whole-spectrum" not in codes
+        else:
+            assert spec.mask.tolist() == (err <= 0).tolist()
+            assert "mask-whole-spectrum" in codes
+            assert describe_spectrum(spec)["n_masked"] == 1
+
+
 def test_table_without_units_assumed_and_recorded(tmp_path):
     """specutils cannot find any column without TUNITs; we go by the names and record it."""
     wave = np.linspace(4000, 5000, N)
