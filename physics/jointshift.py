@@ -39,8 +39,9 @@ import astropy.units as u
 
 __all__ = ["JointWindow", "JointShift", "joint_shift", "WIDTH_STEP", "LOW_SNR_TERM"]
 
-#: Ratio of neighbouring trial widths of the moving lines (the width grid runs from the
-#: resolution floor to the ceiling of the line kind).
+#: Ratio of neighbouring trial widths of the moving lines (the grid runs from the larger of the
+#: resolution floor and 1/3 of the found width to the smaller of 3 times it and the ceiling of
+#: the line kind).
 WIDTH_STEP = 1.1
 #: b of the low-S/N factor sqrt(1 + b / S^2) on the interval (module docstring).
 LOW_SNR_TERM = 8.0
@@ -183,7 +184,7 @@ def joint_shift(windows, start_kms, span_kms, length_axis=True, min_scale=None, 
         ``v``; ``err_low``, ``err_high``: where the width-integrated chi^2 rises by 1 on
         either side, times ``sqrt(1 + LOW_SNR_TERM / snr**2)`` (`LOW_SNR_TERM`); ``err_raw``
         their mean before that factor; ``width_scale``: the best width at ``v``; ``snr``: the
-        moving lines' joint S/N, sqrt(chi^2 without them - chi^2 at ``v``).
+        moving lines' joint S/N, sqrt(chi^2 without them - chi^2 at ``v``) (width-integrated).
     """
     lo_s = max(1.0 / 3.0, 0.0 if min_scale is None else float(min_scale))
     hi_s = max(3.0 if max_scale is None else float(max_scale), lo_s)

@@ -100,7 +100,10 @@ class Measurement:
         Level model of the set's computed hydrogen-like positions (None if not known).
     search : dict
         ``window`` (km/s), ``shift`` (km/s found from the trial), ``found``, ``fwhm`` per class
-        and ``resolution`` (where the FWHM floor comes from).
+        and ``resolution`` (where the FWHM floor comes from); with a z also ``locks_z``,
+        ``locks_z_err`` (weighted mean of the locks), ``joint`` (True when z comes from the
+        joint shift), ``joint_snr`` (joint S/N of the lines that gave it) and ``joint_fwhm``
+        (their best common FWHM).
     """
 
     z: float
@@ -371,13 +374,14 @@ def _offsets(rows, sol, rest_of):
         r["offset_kms"] = _C_KMS * (obs / (rest * (1.0 + sol.z)) - 1.0)
 
 
-def _joint(spectrum, rows, sel, found, sol, label_row, span_kms):
+def _joint(spectrum, rows, sel, found, sol, label_row, span_kms, notes):
     """`joint_shift` of every line of the class used for z (detected or not) over the whole
     search span around the trial; None when not applicable (no flux errors, interval open).
 
     Its data windows reach each moving line's place at either end of the span plus
     `FIT_HALF_WINDOW` matched-filter FWHM (windows that overlap merge); the other lines inside
-    stay at their fitted centres and widths with free fluxes."""
+    stay at their fitted centres and widths with free fluxes.  ``notes`` (the search dict) gets
+    ``joint_snr`` and ``joint_fwhm``."""
     from zline.physics.fitgroup import _window_data
 
     s_unit = u.Quantity(spectrum.spectral_axis).unit
@@ -418,8 +422,11 @@ def _joint(spectrum, rows, sel, found, sol, label_row, span_kms):
                                    np.array([items[k][3] / 2.3548200450309493 for k in run]),
                                    np.array([items[k][4] for k in run]),
                                    np.array([items[k][5] for k in run], dtype=float)))
-    v, lo_err, hi_err, *_ = joint_shift(windows, 0.0, span_kms, length, min_scale=max(floors),
-                                        max_scale=min(min(ceils), 3.0))
+    res = joint_shift(windows, 0.0, span_kms, length, min_scale=max(floors),
+                      max_scale=min(min(ceils), 3.0))
+    v, lo_err, hi_err = res.v, res.err_low, res.err_high
+    notes["joint_snr"] = res.snr
+    notes["joint_fwhm"] = res.width_scale * found.fwhm[sorted(cls)[0]]
     if not np.isfinite([v, lo_err, hi_err]).all():
         return None
     i = label_row[next(r["label"] for r in rows if r.get("used_for_z"))]
@@ -539,7 +546,7 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         sol = solve_redshift(locks, convention=convention, solve_for=solve_for)
         search["locks_z"], search["locks_z_err"] = sol.z, sol.z_err
         joint = _joint(spectrum, rows, sel, found, sol, label_row,
-                       search["window"].to_value(_KMS))
+                       search["window"].to_value(_KMS), search)
         search["joint"] = joint is not None
         sol = joint or sol
         zz, zerr, v, verr = sol.z, sol.z_err, sol.velocity, sol.velocity_err

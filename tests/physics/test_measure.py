@@ -295,6 +295,10 @@ def test_monte_carlo_redshift_pull_low_snr(monte_carlo_low):
     trials = [{r["label"]: r for r in m.lines}[lab]["detected"]
               for m in monte_carlo_low for lab in _MC_ZERO]
     assert np.mean(trials) <= 0.01
+    # the z comes from the joint shift of the set, whose S/N is about 6 here (sqrt(4 * 3^2 + ...))
+    snr = np.array([m.search["joint_snr"] for m in monte_carlo_low if m.locks])
+    assert all(m.search["joint"] for m in monte_carlo_low if m.locks)
+    assert 4.5 < np.median(snr) < 7.5
 
 
 def test_monte_carlo_upper_limits_cover(monte_carlo):
