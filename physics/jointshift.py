@@ -138,9 +138,13 @@ def _profile(windows, v, scales, length_axis):
     """chi^2 of the shifts ``v`` with the width integrated out: -2 ln of the likelihood summed
     over the width grid (a uniform prior in ln width), and the index of the best width at each
     ``v``."""
-    f = 1.0 + np.asarray(v, dtype=float) / _C_KMS
+    f = 1.0 + np.atleast_1d(np.asarray(v, dtype=float)) / _C_KMS
     f = f if length_axis else 1.0 / f
-    total = sum(_chi2_surface(w, f, scales) for w in windows)
+    total = np.zeros((f.size, scales.size))
+    for w in windows:  # in slices of shifts, so that a fine spectrum stays in memory
+        chunk = max(1, int(2e6 // max(1, w.x.size * scales.size * int(w.moving.sum()))))
+        for a in range(0, f.size, chunk):
+            total[a:a + chunk] += _chi2_surface(w, f[a:a + chunk], scales)
     ref = total.min(axis=1)
     marg = ref - 2.0 * np.log(np.exp(-0.5 * (total - ref[:, None])).sum(axis=1))
     return marg, np.argmin(total, axis=1)
