@@ -14,9 +14,12 @@
    lines closer than ``blend`` share one shift, and each width class shares one velocity width
    between the resolution floor and the ceiling of its kind.
 4. `~zline.physics.identify.solve_redshift` on the detected narrow lines (broad lines when the
-   set has no detected narrow line), then `~zline.physics.jointshift.joint_shift`: one shift
-   for all of them with a Delta chi^2 = 1 error, which gives ``z``, ``z_err`` (the locks'
-   weighted mean stays in ``search["locks_z"]``); every line reports its offset from it.
+   set has no detected narrow line) decides which class gives z and keeps the locks' weighted
+   mean in ``search["locks_z"]``; then `~zline.physics.jointshift.joint_shift` gives ``z`` and
+   ``z_err``: every line of that class, detected or not, moves with one shift searched over the
+   whole search window (fluxes held to the class's sign, one common width integrated out), so
+   no line's own centre, width or detection chases the noise.  Every line reports its offset
+   from the result.
 
 Lines not detected get upper limits (`zline.physics.fitting`, module docstring).
 """
@@ -30,7 +33,8 @@ from astropy.constants import c as _c
 from zline.physics._threads import one_blas_thread
 from zline.physics.catalog import LINE_SETS, line_set
 from zline.physics.fitgroup import fit_group
-from zline.physics.fitting import SAMPLING_FWHM_PIXELS, Component, resolution_fwhm
+from zline.physics.fitting import (KINDS, SAMPLING_FWHM_PIXELS, WIDTH_CEILING, Component,
+                                   resolution_fwhm)
 from zline.physics.identify import Lock, RedshiftSolution, _velocity, solve_redshift
 from zline.physics.jointshift import JointWindow, joint_shift
 from zline.physics.kinematics import CONVENTIONS, observed_position
@@ -97,7 +101,10 @@ class Measurement:
         Level model of the set's computed hydrogen-like positions (None if not known).
     search : dict
         ``window`` (km/s), ``shift`` (km/s found from the trial), ``found``, ``fwhm`` per class
-        and ``resolution`` (where the FWHM floor comes from).
+        and ``resolution`` (where the FWHM floor comes from); with a z also ``locks_z``,
+        ``locks_z_err`` (weighted mean of the locks), ``joint`` (True when z comes from the
+        joint shift), ``joint_snr`` (joint S/N of the lines that gave it) and ``joint_fwhm``
+        (their best common FWHM).
     """
 
     z: float
@@ -368,49 +375,59 @@ def _offsets(rows, sol, rest_of):
         r["offset_kms"] = _C_KMS * (obs / (rest * (1.0 + sol.z)) - 1.0)
 
 
-def _joint(spectrum, rows, sel, found, sol, label_row):
-    """`joint_shift` over the windows of the class used for z (every line of that class moves,
-    detected or not, so the shift does not lean on the noise that made the detections); None
-    when not applicable (no flux errors, minimum not bracketed)."""
+def _joint(spectrum, rows, sel, found, sol, label_row, span_kms, notes):
+    """`joint_shift` of every line of the class used for z (detected or not) over the whole
+    search span around the trial; None when not applicable (no flux errors, interval open).
+
+    Its data windows reach each moving line's place at either end of the span plus
+    `FIT_HALF_WINDOW` matched-filter FWHM (windows that overlap merge); the other lines inside
+    stay at their fitted centres and widths with free fluxes.  ``notes`` (the search dict) gets
+    ``joint_snr`` and ``joint_fwhm``."""
     from zline.physics.fitgroup import _window_data
 
     s_unit = u.Quantity(spectrum.spectral_axis).unit
     length = s_unit.physical_type == "length"
-    windows, ratios, floors = [], [], []
     cls = {r["cls"] for r in rows if r.get("used_for_z")}
-    for gid in sorted({r["group"] for r in rows if r["cls"] in cls}):
-        members = [r for r in rows if r["group"] == gid]
-        lo, hi = members[0]["fit"].window.to_value(s_unit)
-        x, y, err = _window_data(spectrum, lo, hi, None, members[0]["label"])
+    items, floors, ceils = [], [], []
+    for r in rows:
+        i, fit = label_row[r["label"]], r["fit"]
+        pred = float(sel["predicted"][i].value)
+        fw_found = abs(pred) * found.fwhm[r["cls"]].to_value(_KMS) / _C_KMS
+        pix = resolution_fwhm(spectrum, pred * s_unit)[0].value / SAMPLING_FWHM_PIXELS
+        if r["cls"] in cls:  # every line of the class moves, detected or not
+            ends = [pred * _shift_factor(s_unit, d * span_kms) for d in (-1, 1)]
+            half = max(FIT_HALF_WINDOW * fw_found, 12 * pix)
+            items.append((min(ends) - half, max(ends) + half, pred, fw_found, True,
+                          KINDS[r["cls"]]))
+            floors.append(float(fit.fwhm_floor.to_value(s_unit)) / fw_found)
+            ceils.append(WIDTH_CEILING[r["cls"]].to_value(_KMS) / found.fwhm[r["cls"]]
+                         .to_value(_KMS))
+        else:
+            c, fw = float(fit.center.to_value(s_unit)), float(fit.fwhm.to_value(s_unit))
+            lo, hi = fit.window.to_value(s_unit)
+            if not (fit.measured and lo <= c <= hi):
+                c = pred * _shift_factor(s_unit, found.velocity.to_value(_KMS))
+            if not (np.isfinite(fw) and fw > 0):
+                fw = fw_found
+            items.append((lo, hi, c, fw, False, 0))
+    windows = []
+    for run in group_lines([0.5 * (a + b) for a, b, *_ in items],
+                           [0.5 * (b - a) for a, b, *_ in items]):
+        lo = min(items[k][0] for k in run)
+        hi = max(items[k][1] for k in run)
+        x, y, err = _window_data(spectrum, lo, hi, None, rows[run[0]]["label"])
         if err is None:
             return None
-        base, sigma, moving = [], [], []
-        for r in members:
-            i, fit = label_row[r["label"]], r["fit"]
-            pred = float(sel["predicted"][i].value)
-            fw = float(fit.fwhm.to_value(s_unit))
-            if not np.isfinite(fw) or fw <= 0:
-                fw = abs(pred) * found.fwhm[r["cls"]].to_value(_KMS) / _C_KMS
-            if r["cls"] in cls:  # every line of the class moves, detected or not
-                base.append(pred)
-                moving.append(True)
-                fw = abs(pred) * found.fwhm[r["cls"]].to_value(_KMS) / _C_KMS
-                floors.append(float(fit.fwhm_floor.to_value(s_unit)) / fw)
-                if r.get("used_for_z"):
-                    ratios.append(float(fit.center.to_value(s_unit)) / pred)
-            else:
-                c = float(fit.center.to_value(s_unit))
-                base.append(c if lo <= c <= hi else pred * _shift_factor(
-                    s_unit, found.velocity.to_value(_KMS)))
-                moving.append(False)
-            sigma.append(fw / 2.3548200450309493)
-        order = 1 if len(members) == 1 else 2
-        windows.append(JointWindow(x, y, err, order, np.array(base), np.array(sigma),
-                                   np.array(moving)))
-    r0 = float(np.median(ratios))
-    start = _C_KMS * ((r0 if length else 1.0 / r0) - 1.0)
-    v, lo_err, hi_err, _ = joint_shift(windows, start, _C_KMS * sol.z_err / (1 + sol.z), length,
-                                       min_scale=max(floors))
+        windows.append(JointWindow(x, y, err, 1 if len(run) == 1 else 2,
+                                   np.array([items[k][2] for k in run]),
+                                   np.array([items[k][3] / 2.3548200450309493 for k in run]),
+                                   np.array([items[k][4] for k in run]),
+                                   np.array([items[k][5] for k in run], dtype=float)))
+    res = joint_shift(windows, 0.0, span_kms, length, min_scale=max(floors),
+                      max_scale=min(min(ceils), 3.0))
+    v, lo_err, hi_err = res.v, res.err_low, res.err_high
+    notes["joint_snr"] = res.snr
+    notes["joint_fwhm"] = res.width_scale * found.fwhm[sorted(cls)[0]]
     if not np.isfinite([v, lo_err, hi_err]).all():
         return None
     i = label_row[next(r["label"] for r in rows if r.get("used_for_z"))]
@@ -530,7 +547,8 @@ def measure_spectrum(spectrum, z=0.0, velocity=0 * _KMS, convention="optical", l
         solve_for = solve_for or ("velocity" if float(z) == 0.0 else "z")
         sol = solve_redshift(locks, convention=convention, solve_for=solve_for)
         search["locks_z"], search["locks_z_err"] = sol.z, sol.z_err
-        joint = _joint(spectrum, rows, sel, found, sol, label_row)
+        joint = _joint(spectrum, rows, sel, found, sol, label_row,
+                       search["window"].to_value(_KMS), search)
         search["joint"] = joint is not None
         sol = joint or sol
         zz, zerr, v, verr = sol.z, sol.z_err, sol.velocity, sol.velocity_err
