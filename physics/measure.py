@@ -394,14 +394,24 @@ def _joint(spectrum, rows, sel, found, sol, label_row, span_kms, notes):
         pred = float(sel["predicted"][i].value)
         fw_found = abs(pred) * found.fwhm[r["cls"]].to_value(_KMS) / _C_KMS
         pix = resolution_fwhm(spectrum, pred * s_unit)[0].value / SAMPLING_FWHM_PIXELS
-        if r["cls"] in cls:  # every line of the class moves, detected or not
+        # every emission line of the class moves, detected or not; of an absorption class only
+        # the detected lines move: between absorption lines the continuum of a real galaxy or
+        # star is itself made of unlisted absorption (metal blends, the G band beside Hγ), which
+        # an undetected line allowed to move and widen would take for its own
+        if r["cls"] in cls and (KINDS[r["cls"]] > 0 or r["detected"]):
             ends = [pred * _shift_factor(s_unit, d * span_kms) for d in (-1, 1)]
             half = max(FIT_HALF_WINDOW * fw_found, 12 * pix)
-            items.append((min(ends) - half, max(ends) + half, pred, fw_found, True,
+            base = fw_found
+            if KINDS[r["cls"]] < 0:
+                # absorption lines differ in width (damping wings of Ca II H and K, narrow Na I
+                # D): each keeps its own fitted width and the width scale is common to all
+                fw = float(fit.fwhm.to_value(s_unit))
+                if np.isfinite(fw) and fw > 0:
+                    base = fw
+            items.append((min(ends) - half, max(ends) + half, pred, base, True,
                           KINDS[r["cls"]]))
-            floors.append(float(fit.fwhm_floor.to_value(s_unit)) / fw_found)
-            ceils.append(WIDTH_CEILING[r["cls"]].to_value(_KMS) / found.fwhm[r["cls"]]
-                         .to_value(_KMS))
+            floors.append(float(fit.fwhm_floor.to_value(s_unit)) / base)
+            ceils.append(WIDTH_CEILING[r["cls"]].to_value(_KMS) * abs(pred) / _C_KMS / base)
         else:
             c, fw = float(fit.center.to_value(s_unit)), float(fit.fwhm.to_value(s_unit))
             lo, hi = fit.window.to_value(s_unit)
