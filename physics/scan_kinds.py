@@ -395,10 +395,10 @@ def _local_scores(prep, rest_ln, weights, sigmas, s0, offs):
 
 
 def _coverage(prep, c, half):
-    """Share of the grid cells within +-half of ln lambda c that hold data."""
+    """Share of the grid cells within +-half of ln lambda c that hold data clear of sky lines."""
     grid = prep["grid"]
     i0, i1 = np.searchsorted(grid, [c - half, c + half])
-    return float(np.mean(prep["cov"][i0:i1])) if i1 > i0 else 0.0
+    return float(np.mean(prep.get("clean", prep["cov"])[i0:i1])) if i1 > i0 else 0.0
 
 
 def systemic(prep, comb, s0, min_snr=5.0):
@@ -410,9 +410,10 @@ def systemic(prep, comb, s0, min_snr=5.0):
     Each line of those groups and of `QUASAR_SYSTEMIC` is matched alone within
     +-`QUASAR_RECENTRE_KMS` of ``s0``.  A line counts when its peak has a local S/N of
     ``min_snr`` or more, lies inside the window, and the data cover at least 95% of the span it
-    is sought over (its tooth and the window): a line partly under a masked telluric band reads
-    off-centre, and one among the dense night-sky lines of the far red reads their residuals
-    (on the SDSS quasars of ../shared/realdata, Mg II beyond 8900 A read up to 1200 km/s off).
+    is sought over (its tooth and the window) clear of sky lines: a line partly under a masked
+    telluric band or an emission-only sky region (Na I D) reads off-centre, and one among the
+    dense night-sky lines of the far red reads their residuals (on the SDSS quasars of
+    ../shared/realdata, Mg II beyond 8900 A read up to 1200 km/s off).
 
     When systemic lines count, the reading moves to the median of their peaks weighted by
     weight x S/N.  Otherwise the weighted median of the blended line's peak and the
