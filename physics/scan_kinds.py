@@ -371,26 +371,19 @@ QUASAR_BLUESHIFT_KMS = 800.0
 QUASAR_RECENTRE_KMS = 3000.0
 
 
-def _local_scores(prep, rest_ln, weights, sigmas, s0, offs):
-    """Matched-filter score of teeth (rest_ln, weights, sigmas) at ln(1+z) = s0 + offs,
-    evaluated directly on the data (no FFT); teeth not wholly in the data are left out."""
+def _tooth_scores(prep, rest_ln, weight, sigma, s0, n):
+    """Matched-filter score of one tooth at ln(1+z) = s0 + j*h, j = -n..n, by direct
+    correlation with the data (None when the tooth leaves the data)."""
     grid, h = prep["grid"], prep["h"]
-    d, var = prep["d_wide"], prep["var"]
-    span = float(np.max(np.abs(offs)))
     c = rest_ln + s0
-    reach = 3 * sigmas + span
-    inside = (c - reach >= grid[0]) & (c + reach <= grid[-1])
-    if not inside.any():
+    i0 = int(round((c - grid[0]) / h))
+    k = int(np.ceil(4 * sigma / h))
+    lo, hi = i0 - n - k, i0 + n + k + 1
+    if lo < 0 or hi > len(grid):
         return None
-    c, w, sig = c[inside], weights[inside], sigmas[inside]
-    i0 = np.round((c - grid[0]) / h).astype(int)
-    half = int(np.ceil((4 * sig.max() + span) / h)) + 1
-    idx = np.clip(i0[:, None] + np.arange(-half, half + 1)[None, :], 0, len(grid) - 1)
-    x = grid[idx] - c[:, None]
-    t = w[None, :, None] * np.exp(-0.5 * ((x[None] - offs[:, None, None])
-                                          / sig[None, :, None]) ** 2)
-    num = np.einsum("klm,lm->k", t, d[idx])
-    den = np.einsum("klm,lm->k", t * t, var[idx])
+    g = weight * np.exp(-0.5 * ((np.arange(-k, k + 1) * h + grid[i0] - c) / sigma) ** 2)
+    num = np.correlate(prep["d_wide"][lo:hi], g, "valid")
+    den = np.correlate(prep["var"][lo:hi], g * g, "valid")
     return np.where(den > 0, num / np.sqrt(np.where(den > 0, den, 1.0)), 0.0)
 
 
@@ -432,11 +425,10 @@ def systemic(prep, comb, s0, min_snr=5.0):
     for k, lab in enumerate(comb.labels):
         group = ("sys" if lab in QUASAR_SYSTEMIC else "blue" if lab in QUASAR_BLUESHIFTED
                  else "blend" if lab in QUASAR_BLENDED else None)
-        sig = comb.sigmas[k:k + 1]
-        if group is None or _coverage(prep, comb.rest_ln[k] + s0,
-                                      1.5 * sig[0] + offs[-1]) < 0.95:
+        sig = float(comb.sigmas[k])
+        if group is None or _coverage(prep, comb.rest_ln[k] + s0, 1.5 * sig + offs[-1]) < 0.95:
             continue
-        score = _local_scores(prep, comb.rest_ln[k:k + 1], comb.weights[k:k + 1], sig, s0, offs)
+        score = _tooth_scores(prep, comb.rest_ln[k], comb.weights[k], sig, s0, n)
         if score is None:
             continue
         i = int(np.argmax(score))
