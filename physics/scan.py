@@ -30,6 +30,9 @@ break where it puts rest 4000 A inside the data: without one (a star's or a quas
 continuum read at the wrong z) its score is scaled down to at most `scan_kinds.BREAK_FLOOR`
 (`scan_kinds.break_factor`; the factor multiplies the peak's score and never moves z).
 
+A quasar reading's z is re-centred on the lines that mark the systemic redshift
+(`scan_kinds.systemic`); its score, and so the ranking, stays that of the comb.
+
 Candidates within three tooth widths of a stronger one (of any kind) are the same reading and are
 merged into it. The result carries a `confidence` that the first candidate is right: a logistic
 function of the first score s1 and of its margin over the second reading s2 (at least 0.1), ``1 /
@@ -335,6 +338,8 @@ def _search(spectrum, plan, top, template=None, step=None, window=None, mask_sky
     for c in kept[:top]:
         if len(c["comb"]) and c["plausible"]:
             s_fine = scan_kinds.fine(prep, c["comb"], c["s"])[0]
+            if c["kind"] == "quasar":
+                s_fine = scan_kinds.systemic(prep, c["comb"], s_fine)
             c["s"] = float(np.clip(s_fine, c["s_min"], c["s_max"]))
         s, e = c["s"], c["err"]
         kw = {}

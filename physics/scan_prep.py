@@ -148,7 +148,8 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     -------
     dict
         ``grid, d`` (S/N summed per grid cell), ``d_wide``, ``cov`` (1 where data), ``var``
-        (variance of d per grid cell), ``snr, good, lnlam, flux`` (data pixels), ``h`` (grid step),
+        (variance of d per grid cell), ``clean`` (``cov`` without the emission-only sky
+        regions), ``snr, good, lnlam, flux`` (data pixels), ``h`` (grid step),
         ``dln`` (median pixel step), ``medium, is_freq, unit, masked``
         (list of (lo, hi, reason) in the spectrum's unit), ``notes`` (list of str).
     """
@@ -283,10 +284,16 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
         if d_wide is not None:
             d_wide *= cov
         var = cov * np.maximum(1.0, np.interp(grid, lnlam[1:], dln_all) / h)
+    # cells with data and no sky line: the emission-only sky regions keep their absorption but
+    # lose the blue or red wing of an emission line there
+    clean = cov.copy()
+    for lo, hi, why in masked:
+        if why.endswith(EMISSION_ONLY):
+            clean[(grid >= np.log(lo)) & (grid <= np.log(hi))] = 0.0
     masked_q = []
     for lo, hi, why in masked:
         q = (np.array([lo, hi]) * u.AA).to_value(unit, equivalencies=u.spectral())
         masked_q.append((float(q.min()), float(q.max()), why))
-    return dict(grid=grid, d=d, d_wide=d_wide, cov=cov, var=var, snr=snr, good=good,
-                lnlam=lnlam, flux=flux, h=h, dln=dpix, width_em=w_em, width_abs=w_abs, medium=medium,
+    return dict(grid=grid, d=d, d_wide=d_wide, cov=cov, clean=clean, var=var, snr=snr,
+                good=good, lnlam=lnlam, flux=flux, h=h, dln=dpix, width_em=w_em, width_abs=w_abs, medium=medium,
                 is_freq=is_freq, unit=unit, masked=masked_q, notes=notes)

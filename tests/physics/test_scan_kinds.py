@@ -77,6 +77,56 @@ def test_synthetic_kinds_right_by_default(kind):
         assert all(c.velocity is not None for c in res.candidates if c.klass == "star")
 
 
+def test_synthetic_quasars_right_at_snr_10():
+    # 60 quasars at S/N 10, z 0.1-4.5, with the generator's forest eating Lyα's blue half and
+    # C IV, Si IV, N V, He II blueshifted by 0-1500 km/s: at least 95% within 0.003 (1 + z)
+    n = 60
+    right = sum(_right("quasar", scan_redshift(spec, klass="quasar").candidates[0].z, z_true)
+                for spec, z_true in (_make("quasar", 100 + i) for i in range(n)))
+    assert right >= 0.95 * n, right
+
+
+def _broad_quasar(z, lines, seed):
+    """A spectrum of broad lines (rest A, shift km/s, amplitude) of sigma 1700 km/s on a flat
+    continuum at S/N 10 per pixel."""
+    lam = np.exp(np.arange(np.log(3800.0), np.log(9200.0), 2.3e-4))
+    flux = np.ones(lam.size)
+    for rest, shift, amp in lines:
+        centre = rest * (1 + z) * (1 + shift / C_KMS)
+        flux += amp * np.exp(-0.5 * ((lam - centre) / (centre * 1700.0 / C_KMS)) ** 2)
+    err = np.full(lam.size, 0.1)
+    return _spec(lam, flux + np.random.default_rng(seed).normal(0.0, 0.1, lam.size), err)
+
+
+def test_quasar_reading_recentred_on_systemic_lines():
+    from zline.physics import scan_kinds, scan_prep
+
+    comb = scan_kinds.comb_for("quasar", "vacuum", 1e-4, "quasar")
+    # broad Mg II at the systemic redshift (common practice) and C III] 1200 km/s off: a reading
+    # 1000 km/s off moves onto Mg II (at 6600 A, clear of telluric bands and night-sky lines)
+    z = 1.358
+    spec = _broad_quasar(z, ((2799.12, 0.0, 1.0), (1908.73, -1200.0, 1.5)), 3)
+    prep = scan_prep.prepare(spec, wide_kms=scan_kinds.WIDE_CONTINUUM_KMS)
+    s_true = np.log1p(z)
+    s_off = s_true - 1000.0 / C_KMS
+    s_new = scan_kinds.systemic(prep, comb, s_off)
+    assert abs(s_new - s_true) * C_KMS < 150.0, (s_new - s_true) * C_KMS
+    # only C IV, blueshifted by 1500 km/s: its reading, moved `QUASAR_BLUESHIFT_KMS` red, is
+    # averaged with the comb's
+    z = 2.0
+    spec = _broad_quasar(z, ((1549.06, -1500.0, 1.5),), 4)
+    prep = scan_prep.prepare(spec, wide_kms=scan_kinds.WIDE_CONTINUUM_KMS)
+    s_true = np.log1p(z)
+    s_off = s_true + 1000.0 / C_KMS
+    s_civ = s_true + (scan_kinds.QUASAR_BLUESHIFT_KMS - 1500.0) / C_KMS
+    s_new = scan_kinds.systemic(prep, comb, s_off)
+    assert abs(s_new - 0.5 * (s_off + s_civ)) * C_KMS < 150.0, (s_new - s_true) * C_KMS
+    # nothing but noise near the reading: it stays
+    spec = _broad_quasar(z, (), 5)
+    prep = scan_prep.prepare(spec, wide_kms=scan_kinds.WIDE_CONTINUUM_KMS)
+    assert scan_kinds.systemic(prep, comb, s_off) == s_off
+
+
 def test_sky_and_noise_say_no_redshift():
     for kind in ("sky", "noise"):
         for i in range(3):
