@@ -202,7 +202,7 @@ def _peaks(prep, comb, res, s_min, s_max, n_keep, plausible=True):
         if not s_min - prep["h"] <= s <= s_max + prep["h"]:
             continue
         s = float(np.clip(s, s_min, s_max))
-        lines = scan_kinds.matched(prep, comb, s, MATCH_THRESHOLD) if len(comb) else []
+        lines = scan_kinds.matched(prep, comb, s, MATCH_THRESHOLD) if comb.labels else []
         if len(comb) > 1 and plausible and scan_kinds.features(comb, lines) < 2:
             peak *= SINGLE_LINE_FACTOR
         out.append(dict(s=s, score=float(peak), err=float(s_err), lines=lines))

@@ -130,3 +130,18 @@ def test_scan_template_option(tmp_path, capsys):
     best = json.loads(capsys.readouterr().out)["candidates"][0]
     # within one pixel (69 km/s): the template differs from the object in line strengths
     assert abs(best["z"] - 0.31) / 1.31 * C_KMS < 69.0 and best["lines"] == []
+
+
+@pytest.mark.parametrize("kind", ["emission-galaxy", "absorption-galaxy"])
+def test_scan_template_of_the_object_itself(tmp_path, capsys, kind):
+    # the object's own noise-free spectrum at rest as the template (a template scan once failed
+    # with an IndexError whenever a template feature stood out in the data)
+    lam, flux, err, _ = ss.make(kind, z=0.0, snr=1e4, seed=11)
+    tpath = tmp_path / "template.fits"
+    ss.write_fits(tpath, lam, flux, err)
+    path, truth = _write(tmp_path, "object.fits", kind, z=0.27, seed=11)
+    assert main(["scan", str(path), "--template", str(tpath), "--z-max", "1",
+                 "--format", "json"]) == 0
+    best = json.loads(capsys.readouterr().out)["candidates"][0]
+    assert abs(best["z"] - truth["z"]) / (1 + truth["z"]) * C_KMS < 69.0  # one pixel
+    assert best["lines"] == [] and best["class"] == "template"
