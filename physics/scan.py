@@ -246,7 +246,7 @@ def _window(window):
 
 def _template_samples(template, prep, window):
     """The template's S/N on the data's grid step, in the data's medium: (tmpl, t0)."""
-    t = scan_prep.prepare(template, window=window, mask_sky=False)
+    t = scan_prep.prepare(template, window=window, mask_sky=False, robust=False)
     lnlam, snr, good = t["lnlam"], t["snr"], t["good"]
     if t["medium"] != prep["medium"]:
         from zline.physics import media  # noqa: PLC0415
@@ -274,7 +274,7 @@ def _search(spectrum, plan, top, template=None, step=None, window=None, mask_sky
 
     wide = scan_kinds.WIDE_CONTINUUM_KMS if any(p[0] in ("quasar", "star") for p in plan) else None
     prep = scan_prep.prepare(spectrum, window=window, step=step, mask_sky=mask_sky,
-                             wide_kms=wide)
+                             wide_kms=wide, robust=template is None)
     dln, h = prep["dln"], prep["h"]
     sig_em = max(prep["width_em"], 0.8 * h)
     sig_abs = prep["width_abs"]
@@ -435,7 +435,10 @@ def scan_redshift(spectrum, lines=None, z_min=0.0, z_max=7.0, top=5, template=No
     template : `specutils.Spectrum`, optional
         A rest-frame template spectrum used instead of the combs (continuum-subtracted the same
         way; its medium, ``meta["zline"]["medium"]``, is converted to the data's); candidates
-        then list no lines and read the kind ``klass`` (default "template").
+        then list no lines and read the kind ``klass`` (default "template").  A template
+        weighs its own lines, so neither it nor the data are clipped or whitened as for the
+        combs (clipped, a template's strong and weak lines weigh alike and the peak moves by
+        up to a pixel).
     dz : float, optional
         Largest lag step in z; default: the finest pixel step of the data.
     window : int, optional

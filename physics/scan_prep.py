@@ -126,7 +126,7 @@ def _sky_regions(lam_lo, lam_hi, medium):
 
 
 def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTINUUM_KMS,
-            wide_kms=None):
+            wide_kms=None, robust=True):
     """The S/N spectrum on a uniform ln(lambda) grid.
 
     Parameters
@@ -220,10 +220,14 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
         sg = snr[good]
         excess[good] = np.maximum(1.0, 1.4826 * _running_median(np.abs(sg), wwin) / 0.6745
                                   * 0.6745)
+    if not robust:  # a template scan: the template, not the clip, says what each line weighs
+        excess = np.ones(flux.shape)
     snr = snr / excess
     # no single line carries a reading: per-pixel S/N clipped at CLIP_SNR, so one very strong
     # line (or a cosmic ray, a sky residual) counts no more than a clear line of the same width
     clip = max(CLIP_SNR, float(np.percentile(np.abs(snr[good]), CLIP_PERCENTILE)))
+    if not robust:
+        clip = np.inf
     snr = np.clip(snr, -clip, clip)
     snr_wide = None
     if wide_kms is not None:

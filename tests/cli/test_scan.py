@@ -143,5 +143,7 @@ def test_scan_template_of_the_object_itself(tmp_path, capsys, kind):
     assert main(["scan", str(path), "--template", str(tpath), "--z-max", "1",
                  "--format", "json"]) == 0
     best = json.loads(capsys.readouterr().out)["candidates"][0]
-    assert abs(best["z"] - truth["z"]) / (1 + truth["z"]) * C_KMS < 69.0  # one pixel
+    # half a pixel (35 km/s); over seeds 11-30 the scatter was 0.8 km/s (emission) and 11 km/s
+    # (absorption) at this S/N 10
+    assert abs(best["z"] - truth["z"]) / (1 + truth["z"]) * C_KMS < 35.0
     assert best["lines"] == [] and best["class"] == "template"
