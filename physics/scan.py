@@ -28,7 +28,10 @@ penalised; lines closer than three tooth widths (Ca II H and Hε) count once.
 An absorption-line galaxy is an old stellar population, so its reading must show the 4000 A
 break where it puts rest 4000 A inside the data: without one (a star's or a quasar's smooth
 continuum read at the wrong z) its score is scaled down to at most `scan_kinds.BREAK_FLOOR`
-(`scan_kinds.break_factor`; the factor multiplies the peak's score and never moves z).
+(`scan_kinds.break_factor`; the factor multiplies the peak's score and never moves z).  Read
+at z > 3 it must be dark below the Lyman limit where the data reach rest 870-905 A
+(`scan_kinds.lyman_factor`, the same kind of factor): a star's metal lines read as the far-UV
+interstellar lines of a z ~ 3.4 galaxy are not.
 
 A quasar reading's z is re-centred on the lines that mark the systemic redshift
 (`scan_kinds.systemic`); its score, and so the ranking, stays that of the comb.
@@ -320,7 +323,8 @@ def _search(spectrum, plan, top, template=None, step=None, window=None, mask_sky
         curves[kind] = (curve, comb)
         for p in peaks:
             if kind == "absorption-galaxy" and tmpl is None:
-                p["score"] *= scan_kinds.break_factor(prep, p["s"])
+                p["score"] *= (scan_kinds.break_factor(prep, p["s"])
+                               * scan_kinds.lyman_factor(prep, p["s"]))
             found.append(dict(p, kind=kind, comb=comb, vel=vel, plausible=tmpl is None,
                               s_min=s_min, s_max=s_max))
     if not found:

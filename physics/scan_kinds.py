@@ -38,7 +38,7 @@ from scipy.signal._peak_finding_utils import PeakPropertyWarning as _PeakPropert
 
 __all__ = ["KINDS", "KIND_SETS", "WEIGHT_CAP", "BROAD_FWHM_KMS", "Comb", "comb_for", "Correlator",
            "line_width", "template_length", "refine", "matched", "fine", "features",
-           "break_strength", "break_factor", "BREAK_OLD", "BREAK_FLOOR", "COOL_STAR_SIGMA_KMS",
+           "break_strength", "break_factor", "lyman_factor", "BREAK_OLD", "BREAK_FLOOR", "COOL_STAR_SIGMA_KMS",
            "QUASAR_PEAKS_AA", "QUASAR_NV_FACTOR", "QUASAR_SYSTEMIC", "QUASAR_BLUESHIFTED",
            "QUASAR_BLUESHIFT_KMS", "systemic"]
 
@@ -350,6 +350,44 @@ def break_factor(prep, s):
         return 1.0
     return float(np.clip(BREAK_FLOOR + (1 - BREAK_FLOOR) * (d - 1.0) / (BREAK_OLD - 1.0),
                          BREAK_FLOOR, 1.0))
+
+
+#: Rest bands (vacuum Angstrom) below the Lyman limit (911.8 A) and of the far-UV continuum,
+#: and the blue/red ratios of median f_lambda between which `lyman_factor` falls from 1 to
+#: `BREAK_FLOOR`: galaxies at z > 3 show almost no light below the Lyman limit (common practice)
+_LYMAN_BLUE, _LYMAN_RED = (870.0, 905.0), (1250.0, 1400.0)
+LYMAN_RATIO = (0.1, 0.3)
+
+
+def _band_median(prep, s, lo, hi):
+    lnlam, good, flux = prep["lnlam"], prep["good"], prep.get("flux")
+    if flux is None:
+        return None
+    i0, i1 = np.searchsorted(lnlam, [np.log(lo) + s, np.log(hi) + s])  # lnlam ascends
+    use = good[i0:i1]
+    if i1 - i0 < 5 or use.sum() < 0.8 * (i1 - i0):
+        return None
+    return float(np.median(flux[i0:i1][use]))
+
+
+def lyman_factor(prep, s):
+    """Score factor of an absorption-galaxy reading at ln(1+z) = s from its Lyman limit.
+
+    A galaxy read at a redshift that puts rest 870-905 A inside the data must be nearly dark
+    there (the Lyman limit absorbs its ionising light); a star whose metal lines were read as
+    the far-UV interstellar lines of a z ~ 3.4 galaxy (its Na D as C II 1335) is bright there.
+    With r the median f_lambda over rest 870-905 A over that over 1250-1400 A, the score is
+    scaled from 1 at r <= 0.1 down to `BREAK_FLOOR` at r >= 0.3 (`LYMAN_RATIO`).  Like
+    `break_factor` it multiplies the score at the peak and never moves z; readings whose bands
+    are not both in the data keep factor 1.
+    """
+    blue = _band_median(prep, s, *_LYMAN_BLUE)
+    red = _band_median(prep, s, *_LYMAN_RED)
+    if blue is None or red is None or not red > 0:
+        return 1.0
+    lo, hi = LYMAN_RATIO
+    r = blue / red
+    return float(np.clip(1.0 - (1.0 - BREAK_FLOOR) * (r - lo) / (hi - lo), BREAK_FLOOR, 1.0))
 
 
 #: Quasar lines whose peaks mark the systemic redshift (common practice: the low-ionisation

@@ -164,6 +164,21 @@ def test_no_break_penalises_absorption_galaxy_readings():
     assert scan_kinds.break_strength(prep, np.log1p(2.5)) is None  # 14000 A: outside
 
 
+def test_lyman_limit_factor():
+    from zline.physics import scan_kinds, scan_prep
+
+    # a star read as a z = 3.4 galaxy puts rest 870-905 A at 3830-3980 A, where a star is bright:
+    # scaled down; the same continuum dark below 4000 A (a real z = 3.4 galaxy) keeps its score
+    star, _ = _make("star", 2, snr=10.0)
+    s = np.log1p(3.4)
+    assert scan_kinds.lyman_factor(scan_prep.prepare(star), s) < 0.7
+    lam = star.spectral_axis.to_value(u.AA)
+    dark = np.where(lam < 912.0 * 4.4, 0.02, 1.0) * star.flux
+    galaxy = Spectrum(flux=dark, spectral_axis=star.spectral_axis, uncertainty=star.uncertainty)
+    assert scan_kinds.lyman_factor(scan_prep.prepare(galaxy), s) == 1.0
+    assert scan_kinds.lyman_factor(scan_prep.prepare(star), np.log1p(1.0)) == 1.0  # not in data
+
+
 def test_mask_on_every_pixel_is_a_flag_not_a_cut():
     # a survey file can set a fibre-level warning bit on every pixel: the search ignores such a
     # mask and says so, and still reads the redshift
