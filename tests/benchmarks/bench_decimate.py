@@ -5,8 +5,9 @@ Baselines measured in the same run: (a) sending every sample of the window (slic
 would cost).
 """
 
+import os
+import sys
 import tempfile
-import time
 from pathlib import Path
 
 import numpy as np
@@ -14,18 +15,16 @@ from astropy.io import fits
 
 from zline.physics.decimate import DecimationPyramid
 
+sys.path.insert(0, os.path.dirname(__file__))
+from _timing import best_of  # noqa: E402
+
 N = 10_000_000
 N_PIXELS = 1200
 N_WINDOWS = 200
 
 
 def _best(fn, repeat=3):
-    best = np.inf
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
+    return best_of(fn, repeat)[0]
 
 
 def main():

@@ -29,7 +29,9 @@ from astropy.nddata import StdDevUncertainty
 from specutils import Spectrum
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), ".."))
+sys.path.insert(0, os.path.dirname(__file__))
 import synthetic_spectra as ss  # noqa: E402
+from _timing import best_of  # noqa: E402
 
 from zline.physics import _threads  # noqa: E402
 from zline.physics.fitting import fit_line  # noqa: E402
@@ -52,12 +54,7 @@ def _spectrum(seed):
 
 
 def _best(fn):
-    best, out = np.inf, None
-    for _ in range(REPEATS):
-        t0 = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - t0)
-    return best, out
+    return best_of(fn, REPEATS)
 
 
 def main():

@@ -29,7 +29,9 @@ from astropy.nddata import StdDevUncertainty
 from specutils import Spectrum
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), ".."))
+sys.path.insert(0, os.path.dirname(__file__))
 import synthetic_spectra as ss  # noqa: E402
+from _timing import best_of  # noqa: E402
 
 from zline.physics.scan import CONFIDENCE_COEFFS, scan_redshift  # noqa: E402
 
@@ -55,12 +57,7 @@ def _big(n=50_000, z=1.234, seed=3):
 
 
 def _best(fn, repeats=REPEATS):
-    best, out = np.inf, None
-    for _ in range(repeats):
-        t = time.process_time()
-        out = fn()
-        best = min(best, time.process_time() - t)
-    return best, out
+    return best_of(fn, repeats, clock=time.process_time)
 
 
 def _template():
