@@ -17,6 +17,8 @@ import numpy as np
 from astropy.nddata import StdDevUncertainty
 from scipy import ndimage
 
+from zline.physics.spectra._build import WHOLE_SPECTRUM_MASK
+
 __all__ = ["SKY_LINES_AIR", "TELLURIC_BANDS_AIR", "MAX_GRID", "MAX_PIXELS", "MIN_STEP",
            "CONTINUUM_KMS", "prepare"]
 
@@ -27,8 +29,11 @@ MIN_STEP = 1e-6  # ln(lambda) per grid step: 0.3 km/s
 CONTINUUM_KMS = 7000.0  # running-median window (common practice: several broad-line widths)
 CLIP_SNR = 8.0  # per-pixel S/N ceiling (see prepare) ...
 CLIP_PERCENTILE = 95.0  # ... unless 5% of the pixels are above it (rich absorption spectra)
-WHITEN_KMS = 20000.0
-MASK_ALL_FRACTION = 0.1  # a mask leaving less than this share of the usable pixels is ignored  # window of the running scatter that down-weights excess structure
+WHITEN_KMS = 20000.0  # window of the running scatter that down-weights excess structure
+#: A mask leaving less than this share of the usable pixels is ignored: the reader's rule for
+#: files (`zline.physics.spectra._build.WHOLE_SPECTRUM_MASK`), applied here to spectra made in
+#: Python
+MASK_ALL_FRACTION = 1.0 - WHOLE_SPECTRUM_MASK
 
 #: Bright night-sky emission lines in AIR [Angstrom]: the airglow lines of O I, the Na I D
 #: doublet (airglow and sodium street lights), the mercury street-light lines and the brightest
@@ -143,6 +148,9 @@ def prepare(spectrum, window=None, step=None, mask_sky=True, continuum_kms=CONTI
     wide_kms : float, optional
         Also return ``d_wide``: the S/N with a running median over this many km/s (for broad
         lines, which a narrower window would eat).
+    robust : bool
+        Whiten excess scatter and clip the per-pixel S/N (the comb search); False for a
+        template scan, where the template weighs the lines.
 
     Returns
     -------
