@@ -38,7 +38,8 @@ from scipy.signal._peak_finding_utils import PeakPropertyWarning as _PeakPropert
 
 __all__ = ["KINDS", "KIND_SETS", "WEIGHT_CAP", "BROAD_FWHM_KMS", "Comb", "comb_for", "Correlator",
            "line_width", "template_length", "refine", "matched", "fine", "features",
-           "break_strength", "break_factor", "lyman_factor", "BREAK_OLD", "BREAK_FLOOR", "COOL_STAR_SIGMA_KMS",
+           "break_strength", "break_factor", "lyman_factor", "BREAK_OLD", "BREAK_FLOOR",
+           "COOL_STAR_SIGMA_KMS",
            "QUASAR_PEAKS_AA", "QUASAR_NV_FACTOR", "QUASAR_SYSTEMIC", "QUASAR_BLUESHIFTED",
            "QUASAR_BLUESHIFT_KMS", "systemic"]
 
@@ -318,20 +319,27 @@ def break_strength(prep, s):
     """The 4000 A break of the data read at ln(1+z) = s: median f_nu over rest 4000-4100 A over
     that over 3850-3950 A (`_BREAK_RED`, `_BREAK_BLUE`); None when either band is not covered
     (less than 80% of its pixels usable) or the blue band's median is not positive."""
+    blue = _band_median(prep, s, *_BREAK_BLUE, fnu=True)
+    red = _band_median(prep, s, *_BREAK_RED, fnu=True)
+    if blue is None or red is None or not blue > 0:
+        return None
+    return red / blue
+
+
+def _band_median(prep, s, lo, hi, fnu=False):
+    """Median flux (f_lambda, or f_nu ~ lambda^2 f_lambda) of the data over rest lo-hi Angstrom
+    read at ln(1+z) = s; None when less than 80% of the band's pixels are usable."""
     lnlam, good, flux = prep["lnlam"], prep["good"], prep.get("flux")
     if flux is None:
         return None
-    meds = []
-    for lo, hi in (_BREAK_BLUE, _BREAK_RED):
-        i0, i1 = np.searchsorted(lnlam, [np.log(lo) + s, np.log(hi) + s])  # lnlam ascends
-        use = good[i0:i1]
-        if i1 - i0 < 5 or use.sum() < 0.8 * (i1 - i0):
-            return None
-        x = lnlam[i0:i1][use]
-        meds.append(float(np.median(flux[i0:i1][use] * np.exp(2 * x))))  # f_nu ~ lam^2 f_lam
-    if not meds[0] > 0:
+    i0, i1 = np.searchsorted(lnlam, [np.log(lo) + s, np.log(hi) + s])  # lnlam ascends
+    use = good[i0:i1]
+    if i1 - i0 < 5 or use.sum() < 0.8 * (i1 - i0):
         return None
-    return meds[1] / meds[0]
+    f = flux[i0:i1][use]
+    if fnu:
+        f = f * np.exp(2 * lnlam[i0:i1][use])
+    return float(np.median(f))
 
 
 def break_factor(prep, s):
@@ -357,17 +365,6 @@ def break_factor(prep, s):
 #: `BREAK_FLOOR`: galaxies at z > 3 show almost no light below the Lyman limit (common practice)
 _LYMAN_BLUE, _LYMAN_RED = (870.0, 905.0), (1250.0, 1400.0)
 LYMAN_RATIO = (0.1, 0.3)
-
-
-def _band_median(prep, s, lo, hi):
-    lnlam, good, flux = prep["lnlam"], prep["good"], prep.get("flux")
-    if flux is None:
-        return None
-    i0, i1 = np.searchsorted(lnlam, [np.log(lo) + s, np.log(hi) + s])  # lnlam ascends
-    use = good[i0:i1]
-    if i1 - i0 < 5 or use.sum() < 0.8 * (i1 - i0):
-        return None
-    return float(np.median(flux[i0:i1][use]))
 
 
 def lyman_factor(prep, s):
