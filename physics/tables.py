@@ -22,7 +22,7 @@ import os
 
 import astropy.units as u
 import numpy as np
-from astropy.table import QTable, Table
+from astropy.table import QTable
 
 from zline.physics._atomic import LATEX_MARKER, TABLE_MARKER, file_sha256
 from zline.physics.constants import CODATA_RELEASE
