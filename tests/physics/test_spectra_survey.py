@@ -38,13 +38,20 @@ def _five_rows():
     return flux, ivar, norm, andmask, ormask
 
 
-def test_row_per_quantity_image_with_log_wcs(tmp_path):
-    """Rows flux, inverse variance, normalised flux, masks; log10 axis by DC-FLAG; VACUUM = T."""
+def _log_rows_file(tmp_path):
+    """The five rows on a log10 axis by DC-FLAG, VACUUM = T, written to rows.fits: (path, rows,
+    HDU)."""
     rows = _five_rows()
     h = _rows_image("Flux Inverse Subcontinuum Andmask Ormask", rows, CTYPE1="LINEAR",
                     CRVAL1=3.5682, CD1_1=1e-4, CRPIX1=1, DC_FLAG=1, VACUUM=True)
     path = tmp_path / "rows.fits"
     h.writeto(path)
+    return path, rows, h
+
+
+def test_row_per_quantity_image_with_log_wcs(tmp_path):
+    """Rows flux, inverse variance, normalised flux, masks; log10 axis by DC-FLAG; VACUUM = T."""
+    path, rows, _ = _log_rows_file(tmp_path)
     spec = read_spectrum(path)
     z = spec.meta["zline"]
     assert z["layout"] == "image-rows"
@@ -81,11 +88,7 @@ def test_row_per_quantity_image_with_wavelength_row_and_coeff_keywords(tmp_path)
 
 
 def test_other_row_of_a_named_row_image_and_unnamed_2d(tmp_path):
-    rows = _five_rows()
-    h = _rows_image("Flux Inverse Subcontinuum Andmask Ormask", rows, CTYPE1="LINEAR",
-                    CRVAL1=3.5682, CD1_1=1e-4, CRPIX1=1, DC_FLAG=1, VACUUM=True)
-    path = tmp_path / "rows.fits"
-    h.writeto(path)
+    path, rows, h = _log_rows_file(tmp_path)
     spec = read_spectrum(path, row=2)  # the normalised flux, on its own
     np.testing.assert_allclose(spec.flux.value, rows[2].astype("f4"))
     assert spec.uncertainty is None
